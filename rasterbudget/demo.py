@@ -1,0 +1,575 @@
+"""Deterministic generator of the tiny demo rasters.
+
+The demo scene is an invented region, the "Kessendry Basin": a valley floor at about 1550 m with
+irrigated and rainfed fields, fallow land, a dry wash, a reservoir and a small town, rising to a
+mountain in the north-east corner (about 3300 m) with forest on its slopes and snow on its top.
+No real place is depicted; the map coordinates (UTM zone 13N, about 40 deg N, 105.2 deg W) only set
+the sun's geometry for the overpass time.
+
+:func:`make_tiny_rasters` writes, for two summer dates, broadband albedo, land-surface temperature
+and NDVI, plus land cover and elevation, as tiled, deflate-compressed GeoTIFFs. The same seed
+always gives the same bytes: every random number comes from one ``numpy.random.default_rng(seed)``
+drawn in a fixed order, and no time-dependent metadata is written. (Across platforms, last-bit
+differences in floating-point library functions could in rare cases flip a rounded value.)
+
+Deliberate defects for the quality-assurance code paths:
+
+- a patch of 30 missing (NaN) pixels in the early-summer albedo;
+- a stripe of 20 missing (NaN) pixels, one row, in the late-summer surface temperature;
+- 20 pixels in one grassland field with albedo about 0.40, above the grassland ``albedo_max``.
+
+Land cover changes between the dates only where snow melted: late-summer snow is a subset of the
+early-summer snow, the rest became bare rock or alpine grassland. ``land_cover.tif`` holds the
+early-summer map, ``land_cover_20260823.tif`` the late-summer one.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import math
+import os
+import pathlib
+import secrets
+import tomllib
+from dataclasses import dataclass
+from importlib import resources
+
+import numpy as np
+import rasterio
+from rasterio.crs import CRS
+from rasterio.transform import Affine
+from rasterio.warp import transform as _transform_coords
+from scipy import ndimage
+
+from rasterbudget.errors import ClassTableError
+
+__all__ = [
+    "DEMO_DATES",
+    "DEMO_OVERPASS_UTC",
+    "DEMO_REGION",
+    "make_tiny_rasters",
+]
+
+DEMO_REGION = "Kessendry Basin (invented)"
+"""Value of the ``DEMO_REGION`` dataset tag written into every demo raster."""
+
+DEMO_DATES = ("2026-06-14", "2026-08-23")
+"""Scene dates (early and late summer), ISO format."""
+
+DEMO_OVERPASS_UTC = "17:50"
+"""Overpass time of both scenes [UTC, HH:MM]; late morning local solar time."""
+
+_ROWS, _COLS = 300, 400
+_PIXEL_SIZE = 30.0  # [m]
+_ORIGIN_X, _ORIGIN_Y = 480_000.0, 4_430_000.0  # upper-left corner [m]
+_EPSG = 32613  # WGS 84 / UTM zone 13N
+_TRANSFORM = Affine(_PIXEL_SIZE, 0.0, _ORIGIN_X, 0.0, -_PIXEL_SIZE, _ORIGIN_Y)
+
+_VALLEY_ELEVATION = 1550.0  # [m] reference elevation of the valley floor
+_LAPSE_RATE = 6.5e-3  # [K m-1] decrease of surface temperature with elevation
+_SNOW_CAP = 273.5  # [K] snow surface temperature never exceeds this (melting snow)
+_ELEVATION_NODATA = -9999.0
+_SNOW_LINE = (3050.0, 3170.0)  # [m] mean snow line on the two dates
+
+
+@dataclass(frozen=True)
+class _ClassLook:
+    """Typical surface values of one land-cover class on the two dates, and their spread.
+
+    albedo, ndvi, lst: typical value on (early, late) summer date [-], [-], [K] at the valley floor.
+    albedo_sd: albedo decrease per unit of the "darkness" field [-].
+    ndvi_sd: NDVI decrease per unit of the "dryness" field [-].
+    lst_dry, lst_dark: LST increase per unit of the dryness and darkness fields [K].
+    slope_gain: LST increase per unit of (cos incidence - cos zenith) on sloping ground [K].
+    """
+
+    albedo: tuple[float, float]
+    ndvi: tuple[float, float]
+    lst: tuple[float, float]
+    albedo_sd: float
+    ndvi_sd: float
+    lst_dry: float
+    lst_dark: float
+    slope_gain: float
+
+
+# Invented but plausible summer values for a semi-arid basin at 1.5-3.3 km elevation.
+# Typical values on (early, late) summer date: albedo [-], NDVI [-], LST at the valley floor [K].
+# Snow temperature is set near the snow line (not the valley floor), capped at _SNOW_CAP.
+_TYPICAL: dict[str, tuple[tuple[float, float], ...]] = {
+    "irrigated_crop": ((0.19, 0.20), (0.80, 0.78), (297.0, 299.0)),
+    "rainfed_crop": ((0.20, 0.24), (0.60, 0.30), (303.0, 313.0)),
+    "grassland": ((0.19, 0.22), (0.45, 0.28), (305.0, 312.0)),
+    "shrubland": ((0.21, 0.22), (0.25, 0.22), (312.0, 316.0)),
+    "bare_soil": ((0.28, 0.30), (0.10, 0.10), (322.0, 327.0)),
+    "open_water": ((0.06, 0.06), (-0.25, -0.25), (291.0, 294.0)),
+    "built_up": ((0.165, 0.165), (0.15, 0.15), (311.0, 315.0)),
+    "forest": ((0.11, 0.11), (0.75, 0.75), (295.0, 297.0)),
+    "snow_ice": ((0.75, 0.60), (-0.05, -0.05), (272.0, 272.3)),
+}
+# Spread: albedo_sd, ndvi_sd, lst_dry, lst_dark, slope_gain (see _ClassLook).
+_SPREAD: dict[str, tuple[float, float, float, float, float]] = {
+    "irrigated_crop": (0.008, 0.035, 1.5, 0.6, 4.0),
+    "rainfed_crop": (0.009, 0.06, 2.0, 0.7, 6.0),
+    "grassland": (0.009, 0.05, 2.0, 0.7, 8.0),
+    "shrubland": (0.009, 0.03, 2.0, 0.8, 10.0),
+    "bare_soil": (0.012, 0.02, 2.5, 1.0, 12.0),
+    "open_water": (0.004, 0.015, 0.4, 0.1, 0.0),
+    "built_up": (0.012, 0.03, 1.5, 0.8, 6.0),
+    "forest": (0.006, 0.03, 1.0, 0.5, 6.0),
+    "snow_ice": (0.04, 0.015, 0.4, 0.2, 1.0),
+}
+_LOOKS = {name: _ClassLook(*_TYPICAL[name], *_SPREAD[name]) for name in _TYPICAL}
+
+_FALLOW_ALBEDO = (0.24, 0.25)  # fallow fields are darker than the dry wash and the rock [-]
+_FALLOW_WARMING = 40.0  # [K per unit albedo] darker fallow soil runs hotter than bright sand
+_ROAD_EFFECT = (-0.01, -0.05, 2.0)  # road pixels in town: albedo, NDVI, LST offsets
+_OUTLIER_ALBEDO = 0.40  # planted out-of-range grassland albedo [-]
+
+
+@dataclass(frozen=True)
+class _ClassRow:
+    code: int
+    albedo_min: float
+    albedo_max: float
+
+
+def _load_classes() -> dict[str, _ClassRow]:
+    """Read codes and albedo ranges from the package's default class table."""
+    text = resources.files("rasterbudget").joinpath("data/classes.toml").read_text("utf-8")
+    table = tomllib.loads(text)
+    rows = {
+        entry["name"]: _ClassRow(
+            int(entry["code"]), float(entry["albedo_min"]), float(entry["albedo_max"])
+        )
+        for entry in table["class"]
+    }
+    missing = sorted(set(_LOOKS) - set(rows))
+    if missing:
+        raise ClassTableError(
+            f"The package class table classes.toml lacks the demo classes {missing}; "
+            "restore the default table shipped with rasterbudget."
+        )
+    return rows
+
+
+# --------------------------------------------------------------------------- random fields
+
+
+def _smooth(rng: np.random.Generator, sigma: float) -> np.ndarray:
+    """Gaussian-smoothed white noise with zero mean and unit standard deviation."""
+    field = ndimage.gaussian_filter(rng.standard_normal((_ROWS, _COLS)), sigma, mode="reflect")
+    return (field - field.mean()) / field.std()
+
+
+def _unit(field: np.ndarray) -> np.ndarray:
+    return (field - field.mean()) / field.std()
+
+
+# --------------------------------------------------------------------------- terrain
+
+
+def _elevation(rng: np.random.Generator) -> np.ndarray:
+    """Valley floor in the south and centre, a mountain in the north-east, hills in the west [m]."""
+    row, col = np.mgrid[0:_ROWS, 0:_COLS].astype(float)
+    # Mountain: a slightly elongated dome peaking near the north-east corner.
+    warp = 12.0 * _smooth(rng, 25)
+    dist = np.hypot((row - 18.0) * 1.1, (col - 382.0) * 0.95) + warp
+    mountain = 1700.0 * np.exp(-((np.maximum(dist, 0.0) / 95.0) ** 2.2))
+    ridges = 50.0 * _smooth(rng, 6) * np.clip(mountain / 900.0, 0.0, 1.0)
+    # Western hills, a low shrub-covered rise.
+    hills = 360.0 / (1.0 + np.exp((col - 45.0 + 15.0 * _smooth(rng, 20)) / 12.0))
+    hills += 40.0 * _smooth(rng, 8) * (hills / 360.0)
+    # Valley floor: gentle slope down to the south-west, a few metres of relief.
+    floor = 1542.0 + 0.05 * (_ROWS - 1 - row) + 0.02 * col + 2.0 * _smooth(rng, 10)
+    return floor + mountain + ridges + hills
+
+
+def _sun_vector(date: str, lat: float, lon: float) -> np.ndarray:
+    """Unit vector towards the sun (east, north, up) at the overpass, FAO-56 eqs 24, 31-33.
+
+    Allen, R. G., Pereira, L. S., Raes, D., Smith, M. (1998) Crop evapotranspiration, FAO
+    Irrigation and Drainage Paper 56. Good enough for the demo's slope illumination effect.
+    """
+    day = _dt.date.fromisoformat(date).timetuple().tm_yday
+    hour, minute = (int(part) for part in DEMO_OVERPASS_UTC.split(":"))
+    decl = 0.409 * math.sin(2 * math.pi * day / 365 - 1.39)  # eq 24
+    b = 2 * math.pi * (day - 81) / 364  # eq 33
+    sc = 0.1645 * math.sin(2 * b) - 0.1255 * math.cos(b) - 0.025 * math.sin(b)  # eq 32
+    solar_time = hour + minute / 60 + lon / 15 + sc  # [h]; longitude east positive
+    omega = math.pi / 12 * (solar_time - 12)  # eq 31
+    phi = math.radians(lat)
+    east = -math.cos(decl) * math.sin(omega)
+    north = math.sin(decl) * math.cos(phi) - math.cos(decl) * math.sin(phi) * math.cos(omega)
+    up = math.sin(decl) * math.sin(phi) + math.cos(decl) * math.cos(phi) * math.cos(omega)
+    return np.array([east, north, up])
+
+
+def _illumination(elevation: np.ndarray, sun: np.ndarray) -> np.ndarray:
+    """cos(incidence) - cos(zenith) for each pixel: positive on slopes facing the sun [-]."""
+    z = ndimage.gaussian_filter(elevation, 1.5, mode="nearest")
+    dz_drow, dz_dcol = np.gradient(z, _PIXEL_SIZE)
+    normal = np.stack([-dz_dcol, dz_drow, np.ones_like(z)])  # rows run southwards
+    normal /= np.linalg.norm(normal, axis=0)
+    cos_i = np.tensordot(sun, normal, axes=1)
+    return cos_i - sun[2]
+
+
+# --------------------------------------------------------------------------- land cover
+
+
+@dataclass
+class _Layout:
+    """Land cover of both dates plus the bits the value generator needs."""
+
+    codes: tuple[np.ndarray, np.ndarray]  # early and late summer land cover
+    field_id: np.ndarray  # 0 outside fields, 1.. inside; lets each field get its own state
+    n_fields: int
+    fallow: np.ndarray  # bool, bare-soil fields
+    road: np.ndarray  # bool, town streets
+    outliers: np.ndarray  # bool, planted out-of-range albedo pixels
+    albedo_gap: np.ndarray  # bool, missing early-summer albedo
+    lst_gap: np.ndarray  # bool, missing late-summer surface temperature
+
+
+def _layout(
+    rng: np.random.Generator, elevation: np.ndarray, classes: dict[str, _ClassRow]
+) -> tuple[_Layout, np.ndarray]:
+    """Build the land cover; returns the layout and the (slightly edited) elevation."""
+    code = {name: row.code for name, row in classes.items()}
+    row, col = np.mgrid[0:_ROWS, 0:_COLS]
+    elevation = elevation.copy()
+
+    # Natural cover by elevation, with noisy class boundaries.
+    patch = _smooth(rng, 7)
+    clearing = _smooth(rng, 5)
+    forest_low = 2300.0 + 60.0 * _smooth(rng, 10)
+    forest_high = 3000.0 + 40.0 * _smooth(rng, 10)
+    snow_line_june = _SNOW_LINE[0] + 30.0 * _smooth(rng, 6)
+    snow_line_august = _SNOW_LINE[1] + 30.0 * _smooth(rng, 6)
+    melt_to_rock = _smooth(rng, 4) > -0.2
+
+    lc = np.full((_ROWS, _COLS), code["shrubland"], dtype=np.uint8)
+    lc[patch > 0.9] = code["grassland"]
+    forest = (elevation >= forest_low) & (elevation < forest_high)
+    lc[forest] = code["forest"]
+    lc[forest & (clearing > 1.6)] = code["grassland"]
+    alpine = elevation >= forest_high
+    lc[alpine] = np.where(patch[alpine] > 0.3, code["bare_soil"], code["grassland"])
+    lc[elevation >= snow_line_june] = code["snow_ice"]
+
+    # Dry wash: a meandering sandy channel from the foothills to the southern edge.
+    wash_rows = np.arange(95, _ROWS)
+    wash_col = (
+        250.0
+        - 0.95 * (wash_rows - 95)
+        + 9.0 * np.sin(wash_rows / 11.0)
+        + 4.0 * np.sin(wash_rows / 4.3 + 1.0)
+    )
+    wash = np.zeros((_ROWS, _COLS), dtype=bool)
+    for r, c in zip(wash_rows.tolist(), wash_col.tolist(), strict=True):
+        half = 1.6 + 0.8 * math.sin(r / 7.0)
+        wash[r, max(round(c - half), 0) : round(c + half) + 1] = True
+    wash = ndimage.binary_closing(wash, iterations=1) | wash
+
+    # Fields on the valley floor: a grid of rectangles, 1-pixel grass margins between them.
+    farmland = (elevation < 1640.0) & (col > 62) & ~ndimage.binary_dilation(wash, iterations=2)
+    field_id = np.zeros((_ROWS, _COLS), dtype=np.int32)
+    fallow = np.zeros((_ROWS, _COLS), dtype=bool)
+    grass_fields: list[tuple[int, int, int, int]] = []
+    n_fields = 0
+    r0 = 95
+    while r0 < _ROWS:
+        height = int(rng.choice([20, 27, 27, 34]))
+        c0 = 60
+        while c0 < _COLS:
+            width = int(rng.choice([20, 27, 27, 34]))
+            kind = float(rng.random())
+            pivot_draw = float(rng.random())
+            corner_draw = float(rng.random())
+            r1, c1 = min(r0 + height, _ROWS), min(c0 + width, _COLS)
+            inner = (slice(r0 + 1, r1), slice(c0 + 1, c1))
+            if (r1 - r0) > 10 and (c1 - c0) > 10 and farmland[r0:r1, c0:c1].all():
+                lc[r0:r1, c0:c1] = code["grassland"]  # margins
+                n_fields += 1
+                field_id[inner] = n_fields
+                if kind < 0.34:
+                    lc[inner] = code["irrigated_crop"]
+                    square = abs((r1 - r0) - (c1 - c0)) <= 2 and (r1 - r0) >= 27
+                    if square and pivot_draw < 0.7:
+                        rr, cc = row[inner], col[inner]
+                        radius = (min(r1 - r0, c1 - c0) - 1) / 2.0
+                        centre_r, centre_c = (r0 + 1 + r1 - 1) / 2.0, (c0 + 1 + c1 - 1) / 2.0
+                        outside = np.hypot(rr - centre_r, cc - centre_c) > radius
+                        corner = code["rainfed_crop"] if corner_draw < 0.5 else code["grassland"]
+                        block = lc[inner]
+                        block[outside] = corner
+                elif kind < 0.68:
+                    lc[inner] = code["rainfed_crop"]
+                elif kind < 0.84:
+                    lc[inner] = code["bare_soil"]
+                    fallow[inner] = True
+                else:
+                    lc[inner] = code["grassland"]
+                    grass_fields.append((r0 + 1, r1, c0 + 1, c1))
+            c0 += width
+        r0 += height
+
+    lc[wash] = code["bare_soil"]  # fields keep clear of the wash; shrubs line its banks
+    elevation[wash] -= 2.5
+
+    # Reservoir with a ragged shore, a flat water surface.
+    lake = (np.hypot((row - 182.0) / 10.0, (col - 318.0) / 15.0) + 0.08 * _smooth(rng, 3)) < 1.0
+    lake = ndimage.binary_opening(lake, iterations=1)
+    lc[lake] = code["open_water"]
+    fallow[lake] = False
+    field_id[lake] = 0
+    elevation[lake] = np.floor(elevation[lake].min()) - 1.0
+
+    # Town: blocks with a street every sixth row and column, and two roads out of town.
+    town = (slice(196, 224), slice(150, 181))
+    lc[town] = code["built_up"]
+    road = np.zeros((_ROWS, _COLS), dtype=bool)
+    tr, tc = row[town], col[town]
+    road[town] = ((tr - 196) % 6 == 0) | ((tc - 150) % 6 == 0)
+    lc[210, 181:_COLS] = code["built_up"]  # road east, along the field margins
+    road[210, 181:_COLS] = True
+    lc[224:_ROWS, 165] = code["built_up"]  # road south
+    road[224:_ROWS, 165] = True
+    for mask in (town, (210, slice(181, _COLS)), (slice(224, _ROWS), 165)):
+        fallow[mask] = False
+        field_id[mask] = 0
+    lc[lake] = code["open_water"]  # the road does not cross the reservoir
+    road &= lc == code["built_up"]
+
+    # Late summer: snow above the higher snow line; melted snow becomes rock or meadow.
+    lc_august = lc.copy()
+    melted = (lc == code["snow_ice"]) & (elevation < snow_line_august)
+    lc_august[melted] = np.where(melt_to_rock[melted], code["bare_soil"], code["grassland"])
+
+    # Planted defects. Out-of-range albedo: a 4 x 5 block inside the largest grassland field.
+    outliers = np.zeros((_ROWS, _COLS), dtype=bool)
+    for gr0, gr1, gc0, gc1 in sorted(grass_fields, key=lambda f: (f[0] - f[1]) * (f[3] - f[2])):
+        orow, ocol = (gr0 + gr1) // 2 - 2, (gc0 + gc1) // 2 - 2
+        block = (slice(orow, orow + 4), slice(ocol, ocol + 5))
+        if (lc[block] == code["grassland"]).all():
+            outliers[block] = True
+            break
+    # Missing albedo: a 5 x 6 patch in the valley; missing LST: one row of 20 pixels.
+    albedo_gap = np.zeros((_ROWS, _COLS), dtype=bool)
+    albedo_gap[251:256, 231:237] = True
+    lst_gap = np.zeros((_ROWS, _COLS), dtype=bool)
+    lst_gap[164, 110:130] = True
+
+    layout = _Layout(
+        codes=(lc, lc_august),
+        field_id=field_id,
+        n_fields=n_fields,
+        fallow=fallow,
+        road=road,
+        outliers=outliers,
+        albedo_gap=albedo_gap,
+        lst_gap=lst_gap,
+    )
+    return layout, elevation
+
+
+# --------------------------------------------------------------------------- surface values
+
+
+def _scene_values(
+    rng: np.random.Generator,
+    layout: _Layout,
+    elevation: np.ndarray,
+    classes: dict[str, _ClassRow],
+    date_index: int,
+    field_state: np.ndarray,
+    illumination: np.ndarray,
+) -> dict[str, np.ndarray]:
+    """Albedo, NDVI and LST of one date, consistent with land cover and terrain."""
+    lc = layout.codes[date_index]
+    # Latent fields: "dry" (less water, lower NDVI, hotter) and "dark" (lower albedo, hotter).
+    dry = _unit(
+        0.55 * _smooth(rng, 12)
+        + 0.45 * field_state[layout.field_id]
+        + 0.35 * rng.standard_normal(lc.shape)
+    )
+    dark = _unit(0.6 * _smooth(rng, 6) + 0.8 * rng.standard_normal(lc.shape))
+    albedo_noise = 0.003 * rng.standard_normal(lc.shape)
+    ndvi_noise = 0.01 * rng.standard_normal(lc.shape)
+    lst_noise = 0.3 * rng.standard_normal(lc.shape)
+
+    albedo = np.empty(lc.shape)
+    ndvi = np.empty(lc.shape)
+    lst = np.empty(lc.shape)
+    above_floor = elevation - _VALLEY_ELEVATION
+    for name, look in _LOOKS.items():
+        mask = lc == classes[name].code
+        base_albedo = np.full(lc.shape, look.albedo[date_index])
+        base_lst = np.full(lc.shape, look.lst[date_index])
+        if name == "bare_soil":
+            base_albedo[layout.fallow] = _FALLOW_ALBEDO[date_index]
+            base_lst += _FALLOW_WARMING * (look.albedo[date_index] - base_albedo)
+        albedo[mask] = base_albedo[mask] - look.albedo_sd * dark[mask] + albedo_noise[mask]
+        ndvi[mask] = look.ndvi[date_index] - look.ndvi_sd * dry[mask] + ndvi_noise[mask]
+        lst[mask] = (
+            base_lst[mask]
+            + look.lst_dry * dry[mask]
+            + look.lst_dark * dark[mask]
+            + look.slope_gain * illumination[mask]
+            + lst_noise[mask]
+        )
+        if name == "snow_ice":
+            # Lapse from 100 m above the snow line, then a smooth cap just above melting point.
+            raw = lst[mask] - _LAPSE_RATE * (elevation[mask] - _SNOW_LINE[date_index] - 100.0)
+            width = 0.5
+            lst[mask] = _SNOW_CAP - width * np.logaddexp(0.0, (_SNOW_CAP - raw) / width)
+        else:
+            lst[mask] -= _LAPSE_RATE * above_floor[mask]
+        lo, hi = classes[name].albedo_min, classes[name].albedo_max
+        albedo[mask] = np.clip(albedo[mask], lo, hi)
+
+    d_albedo, d_ndvi, d_lst = _ROAD_EFFECT
+    albedo[layout.road] += d_albedo
+    ndvi[layout.road] += d_ndvi
+    lst[layout.road] += d_lst
+    built = classes["built_up"]
+    albedo[layout.road] = np.clip(albedo[layout.road], built.albedo_min, built.albedo_max)
+
+    albedo[layout.outliers] = _OUTLIER_ALBEDO + albedo_noise[layout.outliers]
+    ndvi = np.clip(ndvi, -1.0, 1.0)
+
+    albedo = np.round(albedo, 3).astype(np.float32)
+    ndvi = np.round(ndvi, 3).astype(np.float32)
+    lst = np.round(lst, 2).astype(np.float32)
+    if date_index == 0:
+        albedo[layout.albedo_gap] = np.nan
+    else:
+        lst[layout.lst_gap] = np.nan
+    return {"albedo": albedo, "surface_temperature": lst, "ndvi": ndvi}
+
+
+# --------------------------------------------------------------------------- writing
+
+
+def _write_geotiff(
+    path: pathlib.Path,
+    array: np.ndarray,
+    *,
+    nodata: float,
+    description: str,
+    units: str,
+    tags: dict[str, str],
+) -> None:
+    """Write one band to a temporary file in the target folder, then rename it into place."""
+    is_float = np.issubdtype(array.dtype, np.floating)
+    profile = {
+        "driver": "GTiff",
+        "height": _ROWS,
+        "width": _COLS,
+        "count": 1,
+        "dtype": array.dtype.name,
+        "crs": CRS.from_epsg(_EPSG),
+        "transform": _TRANSFORM,
+        "nodata": nodata,
+        "tiled": True,
+        "blockxsize": 256,
+        "blockysize": 256,
+        "compress": "deflate",
+        "predictor": 3 if is_float else 2,
+    }
+    # A unique hidden name in the same folder, so os.replace is atomic; GDAL creates the file
+    # itself, so it gets the usual permissions.
+    tmp = path.with_name(f".{path.name}.{os.getpid()}-{secrets.token_hex(4)}.partial")
+    try:
+        with rasterio.open(tmp, "w", **profile) as dst:
+            dst.write(array, 1)
+            dst.set_band_description(1, description)
+            dst.update_tags(DEMO_REGION=DEMO_REGION, **tags)
+            dst.update_tags(1, units=units)
+        os.replace(tmp, path)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+
+
+def make_tiny_rasters(out_dir: pathlib.Path, seed: int = 20260612) -> list[pathlib.Path]:
+    """Write the demo rasters of the invented Kessendry Basin into ``out_dir``.
+
+    Parameters
+    ----------
+    out_dir
+        Folder to write into; created if missing. Existing demo files are replaced.
+    seed
+        Seed of the random generator. The same seed always gives byte-identical files.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files written: ``land_cover.tif`` (early summer), ``land_cover_20260823.tif``,
+        ``elevation.tif``, then per date ``albedo_YYYYMMDD.tif``,
+        ``surface_temperature_YYYYMMDD.tif`` and ``ndvi_YYYYMMDD.tif``.
+
+    Notes
+    -----
+    Grid: 300 rows x 400 columns of 30 m pixels in EPSG:32613, upper-left corner at
+    (480000, 4430000) m. Land cover is uint8 with nodata 0 (codes from the package's
+    ``classes.toml``); elevation is float32 [m] with nodata -9999; albedo [-], surface temperature
+    [K] and NDVI [-] are float32 with nodata NaN. Both scenes are at 17:50 UTC.
+    """
+    out_dir = pathlib.Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    classes = _load_classes()
+    rng = np.random.default_rng(seed)
+
+    elevation = _elevation(rng)
+    layout, elevation = _layout(rng, elevation, classes)
+    elevation = np.round(elevation, 1).astype(np.float32)
+
+    centre_x = _ORIGIN_X + _PIXEL_SIZE * _COLS / 2
+    centre_y = _ORIGIN_Y - _PIXEL_SIZE * _ROWS / 2
+    lons, lats = _transform_coords(
+        CRS.from_epsg(_EPSG), CRS.from_epsg(4326), [centre_x], [centre_y]
+    )
+
+    # Each field keeps part of its water state from June to August.
+    state_june = np.concatenate([[0.0], rng.standard_normal(layout.n_fields)])
+    state_august = 0.6 * state_june + 0.8 * np.concatenate(
+        [[0.0], rng.standard_normal(layout.n_fields)]
+    )
+
+    written: list[pathlib.Path] = []
+
+    def emit(name: str, array: np.ndarray, nodata: float, description: str, units: str, **tags):
+        path = out_dir / f"{name}.tif"
+        _write_geotiff(path, array, nodata=nodata, description=description, units=units, tags=tags)
+        written.append(path)
+
+    emit("land_cover", layout.codes[0], 0, "land_cover", "class code", DEMO_DATE=DEMO_DATES[0])
+    emit(
+        f"land_cover_{DEMO_DATES[1].replace('-', '')}",
+        layout.codes[1],
+        0,
+        "land_cover",
+        "class code",
+        DEMO_DATE=DEMO_DATES[1],
+    )
+    emit("elevation", elevation, _ELEVATION_NODATA, "elevation", "m")
+
+    units = {"albedo": "1", "surface_temperature": "K", "ndvi": "1"}
+    for index, (date, state) in enumerate(zip(DEMO_DATES, (state_june, state_august), strict=True)):
+        sun = _sun_vector(date, float(lats[0]), float(lons[0]))
+        illumination = _illumination(elevation.astype(float), sun)
+        values = _scene_values(rng, layout, elevation, classes, index, state, illumination)
+        stamp = date.replace("-", "")
+        for name, array in values.items():
+            emit(
+                f"{name}_{stamp}",
+                array,
+                float("nan"),
+                name,
+                units[name],
+                DEMO_DATE=date,
+                DEMO_OVERPASS_UTC=f"{date}T{DEMO_OVERPASS_UTC}:00Z",
+            )
+    return written

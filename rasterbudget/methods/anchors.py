@@ -1,0 +1,378 @@
+"""Sensible heat by hot/cold anchor calibration of a near-surface temperature difference.
+
+The near-surface air temperature difference is taken linear in surface temperature,
+``dT = a + b Ts`` (Bastiaanssen et al. 1998, J. Hydrol. 212-213, eq. 13), fitted so that the hot
+anchor (dry bare soil) has ``H = (1 - EF_hot)(Rn - G)`` and the cold anchor (well-watered crop)
+``H = (1 - EF_cold)(Rn - G)``. The aerodynamic resistance between z1 = 0.1 m and z2 = 2 m is
+corrected for stability with Monin-Obukhov similarity (Paulson 1970; Webb 1970), iterated on the
+anchor scalars only; each pixel is then iterated on its own in pass 2.
+
+Pass 1 (``anchor_histograms_block``) reduces every block to histograms of surface temperature over
+the cold and hot candidates at 0.01 K resolution, carrying per-bin sums of the quantities the
+calibration needs. Order statistics taken from these histograms are exact to the bin width (0.01 K),
+whatever the chunking - unlike dask's approximate percentile, measured several kelvin off.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+from ..errors import AnchorError
+from ..physics import turbulence
+from ..physics.constants import SPECIFIC_HEAT_AIR
+
+#: Surface-temperature histogram: lower edge, upper edge and bin width [K].
+TS_LOW, TS_HIGH, TS_STEP = 200.0, 350.0, 0.01
+N_BINS = round((TS_HIGH - TS_LOW) / TS_STEP)
+
+#: Per-bin sums carried by the pass-1 histogram (row order of the histogram array).
+HISTOGRAM_ROWS = (
+    "count",
+    "surface_temperature",
+    "available_energy",
+    "log_roughness_length",
+    "air_density",
+    "net_radiation",
+    "ground_heat_flux",
+)
+ROLES = ("cold", "hot")
+
+#: Heights between which the near-surface temperature difference is defined [m]
+#: (Bastiaanssen et al. 1998).
+Z1, Z2 = 0.1, 2.0
+
+
+def temperature_bins(surface_temperature: np.ndarray) -> np.ndarray:
+    """Histogram bin index of each surface temperature [K] (clipped to the histogram range)."""
+    index = np.floor((surface_temperature - TS_LOW) / TS_STEP)
+    return np.clip(np.nan_to_num(index, nan=0.0), 0, N_BINS - 1).astype(np.intp)
+
+
+def anchor_histograms_block(state: dict[str, np.ndarray], flat_index: np.ndarray) -> np.ndarray:
+    """Pass-1 reduction of one block.
+
+    Parameters
+    ----------
+    state : output of :func:`rasterbudget.surface.surface_block` for the block.
+    flat_index : global row-major pixel index of each pixel of the block. [-]
+
+    Returns
+    -------
+    Array of shape (2, len(HISTOGRAM_ROWS) + 1, N_BINS): per role (cold, hot) the per-bin sums,
+    and as last row the smallest global pixel index falling in each bin (inf where empty).
+    """
+    out = np.zeros((len(ROLES), len(HISTOGRAM_ROWS) + 1, N_BINS))
+    out[:, -1, :] = np.inf
+    # Anchors are ranked and calibrated on the elevation-adjusted surface temperature.
+    ts = state["datum_surface_temperature"]
+    weights = {
+        "surface_temperature": ts,
+        "available_energy": state["available_energy"],
+        "log_roughness_length": np.log(state["roughness_length"]),
+        "air_density": state["air_density"],
+        "net_radiation": state["net_radiation"],
+        "ground_heat_flux": state["ground_heat_flux"],
+    }
+    for r, role in enumerate(ROLES):
+        mask = state[f"{role}_candidate"]
+        if not mask.any():
+            continue
+        bins = temperature_bins(ts[mask])
+        out[r, 0] = np.bincount(bins, minlength=N_BINS)
+        for k, name in enumerate(HISTOGRAM_ROWS[1:], start=1):
+            out[r, k] = np.bincount(bins, weights=weights[name][mask], minlength=N_BINS)
+        # Row-major order inside the block means the first occurrence has the smallest index.
+        first_bins, first_at = np.unique(bins, return_index=True)
+        out[r, -1, first_bins] = flat_index[mask][first_at]
+    return out
+
+
+def combine_histograms(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Merge two pass-1 histograms: sums add, smallest pixel index wins."""
+    out = a + b
+    out[:, -1, :] = np.minimum(a[:, -1, :], b[:, -1, :])
+    return out
+
+
+@dataclass(frozen=True)
+class Anchor:
+    """One calibration anchor: a population of candidate pixels around a Ts percentile."""
+
+    role: str
+    surface_temperature: float  # population mean [K]
+    available_energy: float  # [W m-2]
+    net_radiation: float  # [W m-2]
+    ground_heat_flux: float  # [W m-2]
+    roughness_length: float  # geometric mean [m]
+    air_density: float  # [kg m-3]
+    pixel_count: float  # pixels in the population (fractional at bin edges)
+    candidates: int  # candidate pixels of this role in the scene
+    percentile: float | None  # [%] None for a user-given anchor
+    percentile_temperature: float | None  # Ts at the percentile [K]
+    ts_range: tuple[float, float] | None  # Ts interval of the population [K]
+    row: int
+    col: int
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+def select_anchor(
+    histogram: np.ndarray,
+    role: str,
+    percentile: float,
+    band: float,
+    min_candidates: int,
+    width: int,
+) -> Anchor:
+    """Choose an anchor population from one role's pass-1 histogram.
+
+    The population is every candidate whose rank lies within ``percentile +- band`` percent of the
+    candidates sorted by surface temperature; bins cut by the rank limits count pro rata.
+    """
+    counts = histogram[0]
+    total = counts.sum()
+    if total < min_candidates:
+        raise AnchorError(
+            f"only {int(total)} {role}-anchor candidate pixels (need {min_candidates}); "
+            f"candidates are {role}_anchor classes of the class table"
+            + (
+                " with NDVI >= anchors.cold_min_ndvi"
+                if role == "cold"
+                else " with NDVI <= anchors.hot_max_ndvi"
+            )
+            + ", free of QA problems: lower the NDVI threshold, check the land cover, "
+            f"or give anchors.{role}_xy."
+        )
+    upper = np.cumsum(counts)
+    lower = upper - counts
+    lo = max(0.0, (percentile - band) / 100.0 * total)
+    hi = min(total, (percentile + band) / 100.0 * total)
+    if hi - lo < 1.0:  # at least one pixel
+        mid = 0.5 * (lo + hi)
+        lo, hi = max(0.0, mid - 0.5), min(total, mid + 0.5)
+    overlap = np.clip(np.minimum(upper, hi) - np.maximum(lower, lo), 0.0, None)
+    weight = np.divide(overlap, counts, out=np.zeros_like(counts), where=counts > 0)
+    n = float((weight * counts).sum())
+
+    def mean(row: str) -> float:
+        return float((weight * histogram[HISTOGRAM_ROWS.index(row)]).sum() / n)
+
+    used = np.nonzero(weight > 0)[0]
+    rank = percentile / 100.0 * total
+    k = int(np.searchsorted(upper, rank, side="left"))
+    k = min(k, N_BINS - 1)
+    inside = (rank - lower[k]) / counts[k] if counts[k] > 0 else 0.5
+    pixel = histogram[-1, k]
+    if not np.isfinite(pixel):  # rank fell on an empty bin edge: nearest used bin
+        pixel = histogram[-1, used[np.argmin(np.abs(used - k))]]
+    row, col = divmod(int(pixel), width)
+    return Anchor(
+        role=role,
+        surface_temperature=mean("surface_temperature"),
+        available_energy=mean("available_energy"),
+        net_radiation=mean("net_radiation"),
+        ground_heat_flux=mean("ground_heat_flux"),
+        roughness_length=float(np.exp(mean("log_roughness_length"))),
+        air_density=mean("air_density"),
+        pixel_count=n,
+        candidates=int(total),
+        percentile=percentile,
+        percentile_temperature=float(TS_LOW + (k + inside) * TS_STEP),
+        ts_range=(float(TS_LOW + used[0] * TS_STEP), float(TS_LOW + (used[-1] + 1) * TS_STEP)),
+        row=row,
+        col=col,
+    )
+
+
+def anchor_from_pixel(
+    state: dict[str, np.ndarray], role: str, row: int, col: int, centre: tuple[int, int]
+) -> Anchor:
+    """An anchor given by the user: the pixel at ``centre`` of a small evaluated window."""
+    i, j = centre
+    if not state["valid"][i, j] or not np.isfinite(state["available_energy"][i, j]):
+        raise AnchorError(
+            f"the {role} anchor given at row {row}, column {col} has no valid inputs "
+            f"(QA flags {int(state['qa'][i, j])}); choose another location for anchors.{role}_xy."
+        )
+    return Anchor(
+        role=role,
+        surface_temperature=float(state["datum_surface_temperature"][i, j]),
+        available_energy=float(state["available_energy"][i, j]),
+        net_radiation=float(state["net_radiation"][i, j]),
+        ground_heat_flux=float(state["ground_heat_flux"][i, j]),
+        roughness_length=float(state["roughness_length"][i, j]),
+        air_density=float(state["air_density"][i, j]),
+        pixel_count=1.0,
+        candidates=1,
+        percentile=None,
+        percentile_temperature=None,
+        ts_range=None,
+        row=row,
+        col=col,
+    )
+
+
+def wind_at_blending_height(
+    wind_speed: float, height: float, station_roughness: float, blending_height: float
+) -> float:
+    """Wind speed at the blending height from a station reading, neutral log profile. [m s-1]
+
+    u*_station = k u_z / ln(z / z0m_station); u_b = u*_station ln(z_b / z0m_station) / k
+    (logarithmic wind profile; Brutsaert 2005, eq. 2.41 form - from memory). The blending height is
+    taken high enough that wind there does not depend on the surface below (Bastiaanssen et al.
+    1998 use 100-200 m).
+    """
+    return float(
+        wind_speed
+        * np.log(blending_height / station_roughness)
+        / np.log(height / station_roughness)
+    )
+
+
+def _resistance(
+    u_blend: float | np.ndarray,
+    blending_height: float,
+    roughness_length: float | np.ndarray,
+    inverse_length: float | np.ndarray,
+) -> tuple:
+    """Friction velocity and near-surface aerodynamic resistance with stability corrections."""
+    psi_m = turbulence.stability_correction_momentum(blending_height * inverse_length)
+    u_star = turbulence.friction_velocity(u_blend, blending_height, roughness_length, psi_m)
+    psi_h2 = turbulence.stability_correction_heat(Z2 * inverse_length)
+    psi_h1 = turbulence.stability_correction_heat(Z1 * inverse_length)
+    rah = turbulence.aerodynamic_resistance(u_star, Z1, Z2, psi_h1, psi_h2)
+    return u_star, rah
+
+
+def _inverse_obukhov(rho, u_star, ts, h):
+    # 1/L = -k g H / (rho cp u*^3 Ts): zero for neutral, finite everywhere (avoids inf * 0).
+    length = turbulence.monin_obukhov_length(rho, u_star, ts, h)
+    with np.errstate(divide="ignore"):
+        return np.where(np.isfinite(length), 1.0 / length, 0.0)
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """Fitted dT = a + b Ts and the anchor-scalar iteration that produced it."""
+
+    a: float  # [K]
+    b: float  # [-]
+    iterations: int
+    converged: bool
+    cold_sensible_heat: float  # [W m-2]
+    hot_sensible_heat: float  # [W m-2]
+    cold_temperature_difference: float  # [K]
+    hot_temperature_difference: float  # [K]
+    cold_resistance: float  # [s m-1]
+    hot_resistance: float  # [s m-1]
+    blending_wind_speed: float  # [m s-1]
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+def calibrate(
+    cold: Anchor,
+    hot: Anchor,
+    blending_wind_speed: float,
+    blending_height: float,
+    cold_evaporative_fraction: float,
+    hot_evaporative_fraction: float,
+    max_iterations: int = 30,
+    tolerance: float = 0.001,
+) -> Calibration:
+    """Fit dT = a + b Ts through the two anchors, iterating the stability correction.
+
+    At each anchor H is fixed by its energy condition, H = (1 - EF) (Rn - G); the iteration finds
+    the stability-corrected resistance consistent with that H, hence dT = H rah / (rho cp)
+    (Bastiaanssen et al. 1998; Allen, Tasumi & Trezza 2007, J. Irrig. Drain. Eng. 133, for the
+    anchor conditions - from memory).
+    """
+    if hot.surface_temperature - cold.surface_temperature < 1.0:
+        raise AnchorError(
+            f"hot anchor ({hot.surface_temperature:.2f} K) is not at least 1 K warmer than the "
+            f"cold anchor ({cold.surface_temperature:.2f} K); the scene lacks contrast: check "
+            "the surface-temperature raster or give anchors.cold_xy and anchors.hot_xy."
+        )
+    anchors = (cold, hot)
+    h = np.array(
+        [
+            (1.0 - cold_evaporative_fraction) * cold.available_energy,
+            (1.0 - hot_evaporative_fraction) * hot.available_energy,
+        ]
+    )
+    z0m = np.array([a.roughness_length for a in anchors])
+    rho = np.array([a.air_density for a in anchors])
+    ts = np.array([a.surface_temperature for a in anchors])
+    inverse_length = np.zeros(2)
+    dt_prev = np.full(2, np.inf)
+    converged = False
+    iteration = 0
+    while iteration < max_iterations:
+        iteration += 1
+        u_star, rah = _resistance(blending_wind_speed, blending_height, z0m, inverse_length)
+        dt = h * rah / (rho * SPECIFIC_HEAT_AIR)
+        if np.all(np.abs(dt - dt_prev) < tolerance):
+            converged = True
+            break
+        dt_prev = dt
+        inverse_length = _inverse_obukhov(rho, u_star, ts, h)
+    b = (dt[1] - dt[0]) / (ts[1] - ts[0])
+    a = dt[0] - b * ts[0]
+    return Calibration(
+        a=float(a),
+        b=float(b),
+        iterations=iteration,
+        converged=converged,
+        cold_sensible_heat=float(h[0]),
+        hot_sensible_heat=float(h[1]),
+        cold_temperature_difference=float(dt[0]),
+        hot_temperature_difference=float(dt[1]),
+        cold_resistance=float(rah[0]),
+        hot_resistance=float(rah[1]),
+        blending_wind_speed=blending_wind_speed,
+    )
+
+
+def sensible_heat_block(
+    surface_temperature: np.ndarray,
+    roughness_length: np.ndarray,
+    air_density: np.ndarray,
+    calibration: Calibration,
+    blending_height: float,
+    max_iterations: int = 30,
+    tolerance: float = 0.1,
+    datum_surface_temperature: np.ndarray | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Per-pixel sensible heat flux [W m-2] and a convergence mask, for one block.
+
+    dT = a + b Ts_datum (Ts_datum: the elevation-adjusted surface temperature the anchors were
+    calibrated on; the plain Ts when not given), then H = rho cp dT / rah with rah iterated to
+    stability convergence pixel by pixel. A pixel stops iterating once its H changes by less than
+        surface_temperature if datum_surface_temperature is None else datum_surface_temperature
+    """
+    ts_for_dt = (
+        surface_temperature if datum_surface_temperature is None else (datum_surface_temperature)
+    )
+    dt = calibration.a + calibration.b * ts_for_dt
+    u_b = calibration.blending_wind_speed
+    inverse_length = np.zeros_like(surface_temperature)
+    h = np.full_like(surface_temperature, np.nan)
+    active = np.isfinite(surface_temperature) & np.isfinite(roughness_length)
+    converged = ~active
+    for _ in range(max_iterations):
+        idx = np.nonzero(active & ~converged)
+        if idx[0].size == 0:
+            break
+        u_star, rah = _resistance(u_b, blending_height, roughness_length[idx], inverse_length[idx])
+        h_new = turbulence.sensible_heat_flux(air_density[idx], dt[idx], rah)
+        done = np.abs(h_new - h[idx]) < tolerance
+        h[idx] = h_new
+        converged[idx] = done
+        inverse_length[idx] = _inverse_obukhov(
+            air_density[idx], u_star, surface_temperature[idx], h_new
+        )
+    return h, converged | ~active

@@ -1,0 +1,135 @@
+"""GeoTIFF writing: atomic (temporary name, rename when complete), one lock per file, band tags."""
+
+from __future__ import annotations
+
+import os
+import threading
+from pathlib import Path
+
+import numpy as np
+import rasterio
+from rasterio.windows import Window
+
+from .grid import Grid
+
+#: Float outputs: file stem -> (units, description). Names are the trade's.
+FLUX_OUTPUTS: dict[str, tuple[str, str]] = {
+    "net_radiation": ("W m-2", "net radiation Rn at overpass"),
+    "ground_heat_flux": ("W m-2", "ground heat flux G at overpass"),
+    "sensible_heat_flux": ("W m-2", "sensible heat flux H at overpass"),
+    "latent_heat_flux": ("W m-2", "latent heat flux LE = Rn - G - H at overpass"),
+    "evaporative_fraction": ("1", "evaporative fraction LE / (Rn - G)"),
+    "et_hourly": ("mm h-1", "actual evapotranspiration rate at overpass"),
+    "et_daily": ("mm d-1", "daily actual evapotranspiration, EF x daily Rn / lambda"),
+}
+COMPONENT_OUTPUTS: dict[str, tuple[str, str]] = {
+    "shortwave_in": ("W m-2", "incoming shortwave radiation at overpass"),
+    "longwave_in": ("W m-2", "incoming longwave radiation at overpass"),
+    "longwave_out": ("W m-2", "outgoing longwave radiation at overpass"),
+    "net_radiation_daily": ("MJ m-2 d-1", "FAO-56 daily net radiation"),
+}
+QA_OUTPUT = "qa_flags"
+
+PARTIAL_SUFFIX = ".partial"
+
+
+def creation_options(block_size: int, dtype: str) -> dict:
+    """GeoTIFF creation options: tiled, DEFLATE level 1 with a predictor.
+
+    DEFLATE at ZLEVEL 1 with the floating-point predictor was measured about 18 % faster than the
+    default level at the same size (DESIGN.md, pitfalls); it is also read by every GIS.
+    """
+    return {
+        "driver": "GTiff",
+        "tiled": True,
+        "blockxsize": block_size,
+        "blockysize": block_size,
+        "compress": "deflate",
+        "zlevel": 1,
+        "predictor": 3 if np.dtype(dtype).kind == "f" else 2,
+        "bigtiff": "if_safer",
+    }
+
+
+def block_size_for(chunk_size: int) -> int:
+    """GeoTIFF block edge that divides the chunk size (so chunks never share a block)."""
+    for size in (512, 256, 128, 64, 32, 16):
+        if chunk_size % size == 0:
+            return size
+    raise ValueError(f"chunk size {chunk_size} is not a multiple of 16")
+
+
+class AtomicRaster:
+    """A single-band GeoTIFF written window by window under a temporary name.
+
+    ``__setitem__`` takes the (row-slice, col-slice) keys that ``dask.array.store`` sends; each file
+    has its own lock (a lock shared by all files serialised the writes: DESIGN.md). ``commit``
+    renames the file to its final name; ``abort`` removes it.
+    """
+
+    def __init__(
+        self,
+        path: Path,
+        grid: Grid,
+        dtype: str,
+        nodata: float | int,
+        block_size: int,
+        name: str,
+        units: str,
+        description: str,
+        tags: dict | None = None,
+    ) -> None:
+        self.path = Path(path)
+        self.partial = self.path.with_name(self.path.name + PARTIAL_SUFFIX)
+        self.lock = threading.Lock()
+        self.dataset = rasterio.open(
+            self.partial,
+            "w",
+            width=grid.width,
+            height=grid.height,
+            count=1,
+            dtype=dtype,
+            crs=grid.crs,
+            transform=grid.transform,
+            nodata=nodata,
+            **creation_options(block_size, dtype),
+        )
+        self.dataset.set_band_description(1, name)
+        self.dataset.update_tags(1, units=units, long_name=description)
+        if tags:
+            self.dataset.update_tags(**{k: str(v) for k, v in tags.items()})
+        self.dtype = dtype
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.dataset.height, self.dataset.width
+
+    def __setitem__(self, key: tuple[slice, slice], value: np.ndarray) -> None:
+        rows, cols = key
+        window = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
+        with self.lock:
+            self.dataset.write(np.asarray(value, dtype=self.dtype), 1, window=window)
+
+    def commit(self) -> Path:
+        self.dataset.close()
+        os.replace(self.partial, self.path)
+        return self.path
+
+    def abort(self) -> None:
+        if not self.dataset.closed:
+            self.dataset.close()
+        self.partial.unlink(missing_ok=True)
+
+
+def write_text_atomic(path: Path, text: str) -> Path:
+    """Write a text file under a temporary name and rename it when complete."""
+    partial = path.with_name(path.name + PARTIAL_SUFFIX)
+    partial.write_text(text, encoding="utf-8")
+    os.replace(partial, path)
+    return path
+
+
+def remove_stale_partials(folder: Path) -> None:
+    """Remove temporary files left by an interrupted run."""
+    for stale in folder.glob("*" + PARTIAL_SUFFIX):
+        stale.unlink(missing_ok=True)

@@ -1,0 +1,425 @@
+"""Sun–Earth geometry: distance, declination, solar time, zenith and incidence angles.
+
+Angles are in radians except longitude, which is in degrees east (positive east of
+Greenwich) because that is how coordinates arrive from a raster's CRS. Day of year runs
+from 1 (1 January) to 365 or 366.
+
+Sources
+-------
+- Allen, R. G., Pereira, L. S., Raes, D. and Smith, M. (1998). Crop evapotranspiration:
+  guidelines for computing crop water requirements. FAO Irrigation and Drainage Paper 56.
+  FAO, Rome.
+- Duffie, J. A. and Beckman, W. A. (2013). Solar Engineering of Thermal Processes,
+  4th edition. Wiley, Hoboken.
+- Allen, R. G., Trezza, R. and Tasumi, M. (2006). Analytical integrated functions for
+  daily solar radiation on slopes. Agricultural and Forest Meteorology 139, 55–73.
+"""
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from rasterbudget.physics.constants import FAO_SOLAR_CONSTANT
+
+__all__ = [
+    "cos_incidence",
+    "cos_solar_zenith",
+    "daylight_hours",
+    "extraterrestrial_radiation_daily",
+    "hour_angle",
+    "inverse_relative_distance",
+    "seasonal_correction",
+    "slope_aspect",
+    "solar_declination",
+    "sunset_hour_angle",
+]
+
+
+def inverse_relative_distance(day_of_year: ArrayLike) -> np.ndarray | float:
+    r"""Inverse relative distance Earth–Sun.
+
+    Parameters
+    ----------
+    day_of_year : array_like
+        Day of the year, 1 to 365 or 366. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Inverse relative distance Earth–Sun, :math:`d_r`. [-]
+
+    Notes
+    -----
+    FAO-56 eq. 23 [1]_:
+
+    .. math:: d_r = 1 + 0.033 \cos\left(\frac{2\pi}{365} J\right)
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 23.
+    """
+    return 1.0 + 0.033 * np.cos((2.0 * np.pi / 365.0) * day_of_year)  # FAO-56 eq. 23
+
+
+def solar_declination(day_of_year: ArrayLike) -> np.ndarray | float:
+    r"""Solar declination.
+
+    Parameters
+    ----------
+    day_of_year : array_like
+        Day of the year, 1 to 365 or 366. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Solar declination, :math:`\delta`. [rad]
+
+    Notes
+    -----
+    FAO-56 eq. 24 [1]_:
+
+    .. math:: \delta = 0.409 \sin\left(\frac{2\pi}{365} J - 1.39\right)
+
+    This simple form differs from more exact ephemerides by up to about 0.5° (from the
+    comparison with the NREL solar position algorithm in this package's tests).
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 24.
+    """
+    return 0.409 * np.sin((2.0 * np.pi / 365.0) * day_of_year - 1.39)  # FAO-56 eq. 24
+
+
+def seasonal_correction(day_of_year: ArrayLike) -> np.ndarray | float:
+    r"""Seasonal correction for solar time (equation of time).
+
+    Parameters
+    ----------
+    day_of_year : array_like
+        Day of the year, 1 to 365 or 366. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Seasonal correction, :math:`S_c`; add it to clock time to get solar time. [h]
+
+    Notes
+    -----
+    FAO-56 eqs. 32–33 [1]_:
+
+    .. math::
+
+        b = \frac{2\pi (J - 81)}{364}
+
+        S_c = 0.1645 \sin 2b - 0.1255 \cos b - 0.025 \sin b
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eqs. 32 and 33.
+    """
+    b = 2.0 * np.pi * (day_of_year - 81.0) / 364.0  # FAO-56 eq. 33
+    return 0.1645 * np.sin(2.0 * b) - 0.1255 * np.cos(b) - 0.025 * np.sin(b)  # FAO-56 eq. 32
+
+
+def hour_angle(
+    utc_hour: ArrayLike, longitude: ArrayLike, day_of_year: ArrayLike
+) -> np.ndarray | float:
+    r"""Solar hour angle from UTC time.
+
+    Parameters
+    ----------
+    utc_hour : array_like
+        Time of day in UTC, fractional hours since midnight (e.g. 10.5 for 10:30 UTC). [h]
+    longitude : array_like
+        Longitude, positive east of Greenwich. [degrees]
+    day_of_year : array_like
+        Day of the year, 1 to 365 or 366. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Hour angle :math:`\omega`, zero at solar noon, negative in the morning and positive
+        in the afternoon, wrapped to :math:`[-\pi, \pi]`. [rad]
+
+    Notes
+    -----
+    FAO-56 eq. 31 [1]_ reads
+
+    .. math:: \omega = \frac{\pi}{12}\left[\left(t + 0.06667 (L_z - L_m) + S_c\right) - 12\right]
+
+    with :math:`L_z` the longitude of the centre of the time zone and :math:`L_m` the
+    longitude of the site, both in degrees *west* of Greenwich. For UTC clock time
+    :math:`L_z = 0`, and with an east-positive longitude :math:`\lambda = -L_m` the term
+    :math:`0.06667 (L_z - L_m)` becomes :math:`\lambda / 15`, so this function computes the
+    equivalent form
+
+    .. math:: \omega = \frac{\pi}{12}\left[\left(t_{UTC} + \frac{\lambda}{15} + S_c\right) - 12\right]
+
+    with :math:`S_c` from :func:`seasonal_correction`. Values outside :math:`[-\pi, \pi]`
+    (UTC date differing from the local date) are shifted by :math:`2\pi`, which changes no
+    trigonometric function of :math:`\omega`.
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eqs. 31–33.
+    """
+    solar_time = utc_hour + longitude / 15.0 + seasonal_correction(day_of_year)
+    omega = np.pi / 12.0 * (solar_time - 12.0)  # FAO-56 eq. 31 with Lz = 0, Lm = -longitude
+    return omega - 2.0 * np.pi * np.rint(omega / (2.0 * np.pi))  # exact no-op inside [-pi, pi]
+
+
+def cos_solar_zenith(
+    latitude: ArrayLike, declination: ArrayLike, hour_angle: ArrayLike
+) -> np.ndarray | float:
+    r"""Cosine of the solar zenith angle (incidence on a horizontal surface).
+
+    Parameters
+    ----------
+    latitude : array_like
+        Latitude, positive north. [rad]
+    declination : array_like
+        Solar declination, see :func:`solar_declination`. [rad]
+    hour_angle : array_like
+        Solar hour angle, see :func:`hour_angle`. [rad]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`\cos\theta_z`; negative when the sun is below the horizon (not clipped). [-]
+
+    Notes
+    -----
+    Duffie & Beckman (2013) eq. 1.6.5 [2]_, the integrand of FAO-56 eq. 28 [1]_:
+
+    .. math:: \cos\theta_z = \cos\varphi \cos\delta \cos\omega + \sin\varphi \sin\delta
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 28.
+    .. [2] Duffie and Beckman (2013), Solar Engineering of Thermal Processes, eq. 1.6.5.
+    """
+    return (  # Duffie & Beckman (2013) eq. 1.6.5
+        np.cos(declination) * np.cos(latitude) * np.cos(hour_angle)
+        + np.sin(declination) * np.sin(latitude)
+    )
+
+
+def cos_incidence(
+    latitude: ArrayLike,
+    declination: ArrayLike,
+    hour_angle: ArrayLike,
+    slope: ArrayLike,
+    aspect: ArrayLike,
+) -> np.ndarray | float:
+    r"""Cosine of the angle of incidence of direct sunlight on a sloping surface.
+
+    Parameters
+    ----------
+    latitude : array_like
+        Latitude, positive north. [rad]
+    declination : array_like
+        Solar declination, see :func:`solar_declination`. [rad]
+    hour_angle : array_like
+        Solar hour angle, see :func:`hour_angle`. [rad]
+    slope : array_like
+        Surface slope from the horizontal, 0 for flat ground. [rad]
+    aspect : array_like
+        Direction the slope faces (downslope), clockwise from north: 0 north,
+        :math:`\pi/2` east, :math:`\pi` south, :math:`3\pi/2` west. [rad]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`\cos\theta`; negative when the sun is behind the slope or below the horizon
+        (not clipped). [-]
+
+    Notes
+    -----
+    Duffie & Beckman (2013) eq. 1.6.2 [1]_, as used for terrain by Allen, Trezza & Tasumi
+    (2006, eq. 7) [2]_ (equation number from memory):
+
+    .. math::
+
+        \cos\theta = \sin\delta \sin\varphi \cos\beta
+                   - \sin\delta \cos\varphi \sin\beta \cos\gamma
+                   + \cos\delta \cos\varphi \cos\beta \cos\omega
+                   + \cos\delta \sin\varphi \sin\beta \cos\gamma \cos\omega
+                   + \cos\delta \sin\beta \sin\gamma \sin\omega
+
+    with slope :math:`\beta` and the surface azimuth :math:`\gamma` of Duffie & Beckman
+    (zero facing south, west positive, east negative), here :math:`\gamma = a - \pi` for
+    the clockwise-from-north aspect :math:`a`. For :math:`\beta = 0` it reduces to
+    :func:`cos_solar_zenith`.
+
+    References
+    ----------
+    .. [1] Duffie and Beckman (2013), Solar Engineering of Thermal Processes, eq. 1.6.2.
+    .. [2] Allen, Trezza and Tasumi (2006), Agricultural and Forest Meteorology 139, 55–73.
+    """
+    gamma = aspect - np.pi  # clockwise from north -> D&B surface azimuth (0 south, west +)
+    sin_d, cos_d = np.sin(declination), np.cos(declination)
+    sin_p, cos_p = np.sin(latitude), np.cos(latitude)
+    sin_b, cos_b = np.sin(slope), np.cos(slope)
+    sin_g, cos_g = np.sin(gamma), np.cos(gamma)
+    sin_w, cos_w = np.sin(hour_angle), np.cos(hour_angle)
+    return (  # Duffie & Beckman (2013) eq. 1.6.2
+        sin_d * sin_p * cos_b
+        - sin_d * cos_p * sin_b * cos_g
+        + cos_d * cos_p * cos_b * cos_w
+        + cos_d * sin_p * sin_b * cos_g * cos_w
+        + cos_d * sin_b * sin_g * sin_w
+    )
+
+
+def slope_aspect(
+    elevation: ArrayLike, pixel_width: float, pixel_height: float
+) -> tuple[np.ndarray, np.ndarray]:
+    r"""Terrain slope and aspect from a gridded elevation model.
+
+    Parameters
+    ----------
+    elevation : array_like
+        2-D elevation grid, row 0 along the north edge, column 0 along the west edge
+        (the usual north-up raster layout). [m]
+    pixel_width : float
+        Pixel size in the east–west direction, positive. [m]
+    pixel_height : float
+        Pixel size in the north–south direction, positive. [m]
+
+    Returns
+    -------
+    slope : numpy.ndarray
+        Slope from the horizontal. [rad]
+    aspect : numpy.ndarray
+        Downslope direction clockwise from north in :math:`[0, 2\pi)`; 0 where the ground is
+        flat. [rad]
+
+    Notes
+    -----
+    Gradients are central differences (:func:`numpy.gradient`; one-sided on the outer
+    rows and columns). With :math:`\partial z/\partial x` towards east and
+    :math:`\partial z/\partial y` towards north,
+
+    .. math::
+
+        \beta = \arctan\sqrt{(\partial z/\partial x)^2 + (\partial z/\partial y)^2}
+
+        a = \operatorname{atan2}(-\partial z/\partial x, -\partial z/\partial y) \bmod 2\pi
+
+    Each interior value depends only on its four direct neighbours, so results computed
+    block by block with a one-pixel halo equal those on the whole grid.
+    """
+    dz_drow, dz_dcol = np.gradient(np.asarray(elevation), pixel_height, pixel_width)
+    dz_dx = dz_dcol  # columns increase eastwards
+    dz_dy = -dz_drow  # rows increase southwards
+    slope = np.arctan(np.hypot(dz_dx, dz_dy))
+    aspect = np.mod(np.arctan2(-dz_dx, -dz_dy), 2.0 * np.pi)
+    aspect = np.where((slope == 0.0) | (aspect >= 2.0 * np.pi), 0.0, aspect)
+    return slope, aspect
+
+
+def sunset_hour_angle(latitude: ArrayLike, declination: ArrayLike) -> np.ndarray | float:
+    r"""Sunset hour angle.
+
+    Parameters
+    ----------
+    latitude : array_like
+        Latitude, positive north. [rad]
+    declination : array_like
+        Solar declination, see :func:`solar_declination`. [rad]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Sunset hour angle :math:`\omega_s`; :math:`\pi` during polar day, 0 during polar
+        night. [rad]
+
+    Notes
+    -----
+    FAO-56 eq. 25 [1]_:
+
+    .. math:: \omega_s = \arccos(-\tan\varphi \tan\delta)
+
+    The argument is clipped to :math:`[-1, 1]` so that polar day and polar night give
+    :math:`\pi` and 0 instead of NaN.
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 25.
+    """
+    x = -np.tan(latitude) * np.tan(declination)
+    return np.arccos(np.clip(x, -1.0, 1.0))  # FAO-56 eq. 25
+
+
+def extraterrestrial_radiation_daily(
+    latitude: ArrayLike, day_of_year: ArrayLike
+) -> np.ndarray | float:
+    r"""Daily extraterrestrial radiation on a horizontal surface.
+
+    Parameters
+    ----------
+    latitude : array_like
+        Latitude, positive north. [rad]
+    day_of_year : array_like
+        Day of the year, 1 to 365 or 366. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Extraterrestrial radiation :math:`R_a`. [MJ m-2 d-1]
+
+    Notes
+    -----
+    FAO-56 eq. 21 [1]_ with :math:`G_{sc} = 0.0820` MJ m-2 min-1:
+
+    .. math::
+
+        R_a = \frac{24 \cdot 60}{\pi} G_{sc} d_r
+              \left[\omega_s \sin\varphi \sin\delta + \cos\varphi \cos\delta \sin\omega_s\right]
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eqs. 21, 23–25.
+    """
+    dr = inverse_relative_distance(day_of_year)
+    delta = solar_declination(day_of_year)
+    ws = sunset_hour_angle(latitude, delta)
+    return (  # FAO-56 eq. 21
+        24.0
+        * 60.0
+        / np.pi
+        * FAO_SOLAR_CONSTANT
+        * dr
+        * (
+            ws * np.sin(latitude) * np.sin(delta)
+            + np.cos(latitude) * np.cos(delta) * np.sin(ws)
+        )
+    )
+
+
+def daylight_hours(latitude: ArrayLike, day_of_year: ArrayLike) -> np.ndarray | float:
+    r"""Maximum possible duration of sunshine (daylight hours).
+
+    Parameters
+    ----------
+    latitude : array_like
+        Latitude, positive north. [rad]
+    day_of_year : array_like
+        Day of the year, 1 to 365 or 366. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        Daylight hours :math:`N`. [h]
+
+    Notes
+    -----
+    FAO-56 eq. 34 [1]_:
+
+    .. math:: N = \frac{24}{\pi} \omega_s
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 34.
+    """
+    ws = sunset_hour_angle(latitude, solar_declination(day_of_year))
+    return 24.0 / np.pi * ws  # FAO-56 eq. 34

@@ -1,0 +1,743 @@
+"""One scene end to end: the two passes of DESIGN.md and the writing of every output.
+
+Pass 1 reads the inputs once and reduces every block to the anchor histograms (small arrays).
+The anchors and the dT calibration are then found on scalars. Pass 2 reads the inputs a second
+time, computes every flux per block, and in ONE ``dask.compute`` writes all GeoTIFFs (one lock per
+file, temporary names) and computes the tile and class summaries from the same blocks.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+import json
+import math
+import platform
+import threading
+import time
+from dataclasses import asdict, dataclass, field
+from functools import reduce
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .errors import InputRasterError, OutputError, RasterBudgetError, SunBelowHorizonError
+from .grid import GDAL_OPTIONS, Grid, check_input, open_input, target_grid
+from .landcover import ClassTable
+from .methods import anchors as anchor_method
+from .outputs import (
+    COMPONENT_OUTPUTS,
+    FLUX_OUTPUTS,
+    QA_OUTPUT,
+    AtomicRaster,
+    block_size_for,
+    remove_stale_partials,
+    write_text_atomic,
+)
+from .physics import partition, radiation, turbulence
+from .physics.constants import SECONDS_PER_HOUR
+from .physics.solar import (
+    cos_solar_zenith,
+    extraterrestrial_radiation_daily,
+    hour_angle,
+    inverse_relative_distance,
+    slope_aspect,
+    solar_declination,
+)
+from .qa import QA, QA_DESCRIPTIONS
+from .recipe import Recipe, Scene, resolve_path
+from .summaries import (
+    HISTOGRAM_RANGES,
+    class_histograms,
+    class_rows,
+    rows_to_csv,
+    tile_rows,
+    tile_statistics,
+    tiles_geojson,
+)
+from .surface import ClassLookups, SceneConstants, kelvin, surface_block
+
+CAUTION = (
+    "These are model estimates with real uncertainty: field-scale errors of tens of percent are "
+    "common, and results depend on input quality, weather data and anchor choice. They do not "
+    "replace local regulations, licensed hydrologic or engineering judgement, or ground "
+    "measurements in water-rights, irrigation or drought decisions."
+)
+
+OPTIONAL_INPUTS = ("ndvi", "elevation")
+REQUIRED_INPUTS = ("albedo", "surface_temperature", "land_cover")
+
+
+@dataclass
+class RunSettings:
+    """Chunking and output choices for one run (CLI options override the recipe)."""
+
+    out_dir: Path
+    chunk_size: int
+    tile_size: int
+    write_components: bool = False
+    quicklook: bool = True
+    progress: bool = False
+
+
+@dataclass
+class SceneResult:
+    scene_id: str
+    out_dir: Path
+    outputs: dict[str, Path]
+    manifest: dict = field(repr=False)
+
+
+def effective_chunk_size(requested: int) -> int:
+    """Chunk edge rounded up to a multiple of 16, so GeoTIFF blocks never straddle chunks."""
+    return int(math.ceil(requested / 16) * 16)
+
+
+# ----------------------------------------------------------------------------- scene scalars
+
+
+def scene_centre_lonlat(grid: Grid) -> tuple[float, float]:
+    from pyproj import Transformer
+
+    left, bottom, right, top = grid.bounds
+    t = Transformer.from_crs(grid.crs, "EPSG:4326", always_xy=True)
+    lon, lat = t.transform(0.5 * (left + right), 0.5 * (bottom + top))
+    return float(lon), float(lat)
+
+
+def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
+    """Scene-wide scalars in SI units, and facts for the manifest. Refuses a sun below limits."""
+    t = scene.acquired_utc
+    doy = t.timetuple().tm_yday
+    utc_hour = t.hour + t.minute / 60 + t.second / 3600
+    decl = float(solar_declination(doy))
+    dr = float(inverse_relative_distance(doy))
+    lon, lat = scene_centre_lonlat(grid)
+    lat_rad = math.radians(lat)
+    cos_z = float(cos_solar_zenith(lat_rad, decl, hour_angle(utc_hour, lon, doy)))
+    elevation_deg = math.degrees(math.asin(max(-1.0, min(1.0, cos_z))))
+    limit = scene.radiation.min_sun_elevation_deg
+    if elevation_deg < limit:
+        where = "below the horizon" if elevation_deg <= 0 else f"only {elevation_deg:.1f}° high"
+        raise SunBelowHorizonError(
+            f"scene {scene.id}: at {t.isoformat()} the sun is {where} over the scene centre "
+            f"({lat:.3f}° N, {lon:.3f}° E; elevation {elevation_deg:.1f}°, limit {limit}°); "
+            "check acquired_utc is in UTC, or lower radiation.min_sun_elevation_deg."
+        )
+    ow, dw = scene.overpass, scene.daily
+    ta = kelvin(ow.air_temperature_c)
+    ea = None
+    if ow.relative_humidity_pct is not None:
+        ea = float(turbulence.vapour_pressure_from_relative_humidity(ta, ow.relative_humidity_pct))
+    if scene.radiation.longwave_in == "brutsaert" and ea is None:
+        raise RasterBudgetError(
+            f"scene {scene.id}: radiation.longwave_in = 'brutsaert' needs "
+            "overpass.relative_humidity_pct; give it or use 'bastiaanssen'."
+        )
+    tau_station = None
+    if ow.shortwave_in_w_m2 is not None:
+        tau_station = ow.shortwave_in_w_m2 / (1367.0 * cos_z * dr)
+        if not 0.2 <= tau_station <= 1.0:
+            raise RasterBudgetError(
+                f"scene {scene.id}: overpass.shortwave_in_w_m2 = {ow.shortwave_in_w_m2} implies a "
+                f"transmissivity of {tau_station:.2f} (plausible 0.2-1.0) for a sun "
+                f"{elevation_deg:.1f}° high; check the value and acquired_utc."
+            )
+    tmax, tmin = kelvin(dw.tmax_c), kelvin(dw.tmin_c)
+    if dw.vapour_pressure_kpa is not None:
+        ea_daily = dw.vapour_pressure_kpa
+    else:
+        ea_daily = float(
+            turbulence.vapour_pressure_from_rh_extremes(tmin, tmax, dw.rh_max_pct, dw.rh_min_pct)
+        )
+    clearness = None
+    if dw.shortwave_mj_m2 is not None:
+        ra = float(extraterrestrial_radiation_daily(lat_rad, doy))
+        rso = float(radiation.clear_sky_shortwave_daily(ra, ow.station_elevation_m))
+        clearness = min(dw.shortwave_mj_m2 / rso, 1.0)
+    constants = SceneConstants(
+        day_of_year=doy,
+        utc_hour=utc_hour,
+        declination=decl,
+        inverse_distance=dr,
+        air_temperature=ta,
+        station_elevation=ow.station_elevation_m,
+        vapour_pressure=ea,
+        station_transmissivity=tau_station,
+        longwave_in_method=scene.radiation.longwave_in,
+        emissivity_method=scene.radiation.emissivity,
+        ground_heat_method=scene.radiation.ground_heat,
+        min_cos_incidence=math.sin(math.radians(limit)),
+        tmax=tmax,
+        tmin=tmin,
+        vapour_pressure_daily=ea_daily,
+        daily_clearness=clearness,
+        sunshine_hours=dw.sunshine_hours,
+        min_ndvi_cold=scene.anchors.cold_min_ndvi,
+        max_ndvi_hot=scene.anchors.hot_max_ndvi,
+        surface_lapse_rate=scene.anchors.surface_lapse_rate_k_per_km / 1000.0,
+    )
+    facts = {"centre_lon": lon, "centre_lat": lat, "sun_elevation_deg_centre": elevation_deg}
+    return constants, facts
+
+
+# ----------------------------------------------------------------------------- per-block work
+
+_local = threading.local()
+
+
+def _transformer(crs_wkt: str):
+    from pyproj import Transformer
+
+    cache = getattr(_local, "transformers", None)
+    if cache is None:
+        cache = _local.transformers = {}
+    if crs_wkt not in cache:
+        cache[crs_wkt] = Transformer.from_crs(crs_wkt, "EPSG:4326", always_xy=True)
+    return cache[crs_wkt]
+
+
+def pixel_lonlat(grid: Grid, rows: slice, cols: slice) -> tuple[np.ndarray, np.ndarray]:
+    """Longitude [deg E] and latitude [rad] of the pixel centres of a window, via pyproj."""
+    t = grid.transform
+    x = t.c + (np.arange(cols.start, cols.stop) + 0.5) * t.a
+    y = t.f + (np.arange(rows.start, rows.stop) + 0.5) * t.e
+    xx, yy = np.meshgrid(x, y)
+    lon, lat = _transformer(grid.crs.to_wkt()).transform(xx, yy)
+    return np.asarray(lon), np.radians(lat)
+
+
+@dataclass(frozen=True)
+class BlockContext:
+    """Everything a block function needs besides its pixels (small, picklable)."""
+
+    grid: Grid
+    constants: SceneConstants
+    lookups: ClassLookups
+    names: tuple[str, ...]
+
+
+def _state(ctx: BlockContext, arrays, rows: slice, cols: slice) -> dict[str, np.ndarray]:
+    data = dict(zip(ctx.names, (np.asarray(a, dtype=np.float64) for a in arrays), strict=True))
+    lon, lat = pixel_lonlat(ctx.grid, rows, cols)
+    return surface_block(
+        ctx.constants,
+        ctx.lookups,
+        data["albedo"],
+        data["surface_temperature"],
+        data["land_cover"],
+        lat,
+        lon,
+        ndvi=data.get("ndvi"),
+        elevation=data.get("elevation"),
+        slope=data.get("slope"),
+        aspect=data.get("aspect"),
+    )
+
+
+def pass1_block(ctx: BlockContext, location, *arrays) -> np.ndarray:
+    """Pass 1 for one block: surface state, then the anchor histograms."""
+    (r0, r1), (c0, c1) = location
+    state = _state(ctx, arrays, slice(r0, r1), slice(c0, c1))
+    rows, cols = np.mgrid[r0:r1, c0:c1]
+    flat = rows.astype(np.float64) * ctx.grid.width + cols
+    return anchor_method.anchor_histograms_block(state, flat)
+
+
+@dataclass(frozen=True)
+class Pass2Parameters:
+    calibration: anchor_method.Calibration
+    cold: anchor_method.Anchor
+    hot: anchor_method.Anchor
+    explicit_cold: bool
+    explicit_hot: bool
+    blending_height: float
+    max_iterations: int
+    variables: tuple[str, ...]
+
+
+def pass2_block(ctx: BlockContext, p: Pass2Parameters, *arrays, block_info=None) -> np.ndarray:
+    """Pass 2 for one block: all fluxes and QA, stacked along a leading variable axis."""
+    (r0, r1), (c0, c1) = block_info[None]["array-location"][-2:]
+    state = _state(ctx, arrays, slice(r0, r1), slice(c0, c1))
+    qa = state["qa"]
+    valid = state["valid"]
+    ts = state["surface_temperature"]
+    rn, g, available = state["net_radiation"], state["ground_heat_flux"], state["available_energy"]
+
+    h, converged = anchor_method.sensible_heat_block(
+        np.where(valid, ts, np.nan),
+        state["roughness_length"],
+        state["air_density"],
+        p.calibration,
+        p.blending_height,
+        p.max_iterations,
+        datum_surface_temperature=state["datum_surface_temperature"],
+    )
+    le_raw = partition.latent_heat_residual(rn, g, h)
+    le = partition.clip_latent_heat(le_raw, available)
+    with np.errstate(invalid="ignore"):
+        clipped_low = valid & (le_raw < 0)
+        clipped_high = valid & (le_raw > np.maximum(available, 0.0))
+    h = available - le  # closure Rn = G + H + LE holds after clipping
+    ef = partition.evaporative_fraction(le, available)
+    lam = turbulence.latent_heat_of_vaporization(ts)
+    lam_daily = turbulence.latent_heat_of_vaporization(
+        0.5 * (ctx.constants.tmax + ctx.constants.tmin)
+    )
+    et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
+    et_daily = partition.et_daily_from_evaporative_fraction(
+        ef, state["net_radiation_daily"], lam_daily
+    )
+
+    def bit(mask, flag):
+        return np.where(mask, np.uint16(flag), np.uint16(0))
+
+    qa = qa | bit(clipped_low, QA.LATENT_HEAT_CLIPPED_AT_ZERO)
+    qa |= bit(clipped_high, QA.LATENT_HEAT_CLIPPED_AT_AVAILABLE)
+    qa |= bit(valid & ~converged, QA.STABILITY_NOT_CONVERGED)
+    for anchor, explicit, flag, candidates in (
+        (p.cold, p.explicit_cold, QA.COLD_ANCHOR, state["cold_candidate"]),
+        (p.hot, p.explicit_hot, QA.HOT_ANCHOR, state["hot_candidate"]),
+    ):
+        if explicit:
+            if r0 <= anchor.row < r1 and c0 <= anchor.col < c1:
+                qa[anchor.row - r0, anchor.col - c0] |= np.uint16(flag)
+        else:
+            low, high = anchor.ts_range
+            datum = state["datum_surface_temperature"]
+            with np.errstate(invalid="ignore"):
+                qa |= bit(candidates & (datum >= low) & (datum < high), flag)
+
+    values = {
+        "net_radiation": rn,
+        "ground_heat_flux": g,
+        "sensible_heat_flux": h,
+        "latent_heat_flux": le,
+        "evaporative_fraction": ef,
+        "et_hourly": et_hourly,
+        "et_daily": et_daily,
+        "shortwave_in": state["shortwave_in"],
+        "longwave_in": state["longwave_in"],
+        "longwave_out": state["longwave_out"],
+        "net_radiation_daily": state["net_radiation_daily"],
+        QA_OUTPUT: qa,
+        "land_cover_code": state["codes"],
+    }
+    out = np.stack([np.asarray(values[v], dtype=np.float32) for v in p.variables])
+    return out
+
+
+# ----------------------------------------------------------------------------- helpers
+
+
+def sha256_of(path: Path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as f:
+        for chunk in iter(lambda: f.read(1 << 20), b""):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+def _tree_reduce(items: list, combine, split_every: int = 8):
+    import dask
+
+    level = list(items)
+    while len(level) > 1:
+        level = [
+            dask.delayed(lambda *xs: reduce(combine, xs))(*level[i : i + split_every])
+            for i in range(0, len(level), split_every)
+        ]
+    return level[0]
+
+
+def _combine_class(a, b):
+    hist = a[0] + b[0]
+    moments = a[1].copy()
+    moments[..., :3] += b[1][..., :3]
+    moments[..., 3] = np.minimum(a[1][..., 3], b[1][..., 3])
+    moments[..., 4] = np.maximum(a[1][..., 4], b[1][..., 4])
+    return hist, moments
+
+
+def _class_block(block: np.ndarray, variables: tuple[str, ...], class_codes: list[int]):
+    values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES}
+    codes = block[variables.index("land_cover_code")].astype(np.intp)
+    return class_histograms(values, codes, class_codes)
+
+
+def versions() -> dict[str, str]:
+    import dask
+    import pyproj
+    import rasterio
+    import rioxarray
+    import xarray
+
+    return {
+        "rasterbudget": __version__,
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "dask": dask.__version__,
+        "xarray": xarray.__version__,
+        "rioxarray": rioxarray.__version__,
+        "rasterio": rasterio.__version__,
+        "gdal": rasterio.__gdal_version__,
+        "pyproj": pyproj.__version__,
+        "proj": pyproj.proj_version_str,
+    }
+
+
+# ----------------------------------------------------------------------------- the scene
+
+
+def run_scene(
+    recipe: Recipe, scene: Scene, table: ClassTable, settings: RunSettings
+) -> SceneResult:
+    """Run one scene end to end and return where its outputs are."""
+    import dask
+    import dask.array as da
+    import rasterio
+
+    from .progress import TaskProgress
+
+    started = time.perf_counter()
+    timings: dict[str, float] = {}
+    chunk = effective_chunk_size(settings.chunk_size)
+    block = block_size_for(chunk)
+
+    paths = {}
+    for role in REQUIRED_INPUTS + OPTIONAL_INPUTS:
+        value = getattr(scene.inputs, role)
+        if value is not None:
+            paths[role] = resolve_path(recipe, value)
+    with rasterio.Env(**GDAL_OPTIONS):
+        grid = target_grid(paths["albedo"])
+        described = {role: check_input(path, role, grid) for role, path in paths.items()}
+    constants, facts = scene_constants(scene, grid)
+    lookups = ClassLookups.from_table(table)
+
+    out_dir = settings.out_dir / scene.id
+    out_dir.mkdir(parents=True, exist_ok=True)
+    remove_stale_partials(out_dir)
+
+    env = rasterio.Env(**GDAL_OPTIONS)
+    env.__enter__()
+    writers: list[AtomicRaster] = []
+    try:
+        arrays = {role: open_input(path, role, grid, chunk) for role, path in paths.items()}
+        if "elevation" in arrays:
+            dx, dy = grid.pixel_size
+            elev = arrays["elevation"]
+            for k, name in enumerate(("slope", "aspect")):
+                arrays[name] = elev.map_overlap(
+                    lambda z, k=k: slope_aspect(z.astype(np.float64), dx, dy)[k].astype(np.float32),
+                    depth=1,
+                    boundary="nearest",
+                    dtype=np.float32,
+                )
+        names = tuple(arrays)
+        ctx = BlockContext(grid=grid, constants=constants, lookups=lookups, names=names)
+        stack = list(arrays.values())
+
+        # ---------------- pass 1: anchor histograms (+ windows around user-given anchors)
+        t0 = time.perf_counter()
+        delayed_blocks = [a.to_delayed() for a in stack]
+        chunks_y, chunks_x = stack[0].chunks
+        y_edges = np.concatenate([[0], np.cumsum(chunks_y)])
+        x_edges = np.concatenate([[0], np.cumsum(chunks_x)])
+        partials = []
+        for i in range(len(chunks_y)):
+            for j in range(len(chunks_x)):
+                location = ((y_edges[i], y_edges[i + 1]), (x_edges[j], x_edges[j + 1]))
+                partials.append(
+                    dask.delayed(pass1_block)(ctx, location, *[d[i, j] for d in delayed_blocks])
+                )
+        histogram = _tree_reduce(partials, anchor_method.combine_histograms)
+        windows = {}
+        s = scene.anchors
+        for role, xy in (("cold", s.cold_xy), ("hot", s.hot_xy)):
+            if xy is None:
+                continue
+            row, col = rasterio.transform.rowcol(grid.transform, *xy)
+            if not (0 <= row < grid.height and 0 <= col < grid.width):
+                raise RasterBudgetError(
+                    f"scene {scene.id}: anchors.{role}_xy = {list(xy)} lies outside the scene "
+                    f"grid {tuple(round(b) for b in grid.bounds)}; give map coordinates in "
+                    f"{grid.crs.to_string()}."
+                )
+            r0, c0 = max(row - 1, 0), max(col - 1, 0)
+            r1, c1 = min(row + 2, grid.height), min(col + 2, grid.width)
+            windows[role] = (row, col, r0, c0, [a[r0:r1, c0:c1] for a in stack], (r1, c1))
+        with TaskProgress(f"{scene.id} pass 1", settings.progress):
+            histogram, window_values = dask.compute(
+                histogram, {k: v[4] for k, v in windows.items()}
+            )
+        timings["pass1_s"] = time.perf_counter() - t0
+
+        chosen = {}
+        percentiles = {"cold": s.cold_percentile, "hot": s.hot_percentile}
+        for r, role in enumerate(anchor_method.ROLES):
+            if role in windows:
+                row, col, r0, c0, _, (r1, c1) = windows[role]
+                state = _state(ctx, window_values[role], slice(r0, r1), slice(c0, c1))
+                chosen[role] = anchor_method.anchor_from_pixel(
+                    state, role, row, col, (row - r0, col - c0)
+                )
+            else:
+                chosen[role] = anchor_method.select_anchor(
+                    histogram[r],
+                    role,
+                    percentiles[role],
+                    s.percentile_band,
+                    s.min_candidates,
+                    grid.width,
+                )
+        if scene.overpass.wind_speed_m_s is None:
+            raise RasterBudgetError(
+                f"scene {scene.id}: anchor calibration needs overpass.wind_speed_m_s; add it."
+            )
+        u_blend = anchor_method.wind_at_blending_height(
+            scene.overpass.wind_speed_m_s,
+            scene.overpass.wind_height_m,
+            s.station_roughness_m,
+            s.blending_height_m,
+        )
+        calibration = anchor_method.calibrate(
+            chosen["cold"],
+            chosen["hot"],
+            u_blend,
+            s.blending_height_m,
+            s.cold_evaporative_fraction,
+            s.hot_evaporative_fraction,
+            s.max_iterations,
+            s.tolerance_k,
+        )
+
+        # ---------------- pass 2: fluxes, GeoTIFFs and summaries in one compute
+        t0 = time.perf_counter()
+        written = list(FLUX_OUTPUTS) + (
+            list(COMPONENT_OUTPUTS) if settings.write_components else []
+        )
+        variables = (*written, QA_OUTPUT, "land_cover_code")
+        params = Pass2Parameters(
+            calibration=calibration,
+            cold=chosen["cold"],
+            hot=chosen["hot"],
+            explicit_cold="cold" in windows,
+            explicit_hot="hot" in windows,
+            blending_height=s.blending_height_m,
+            max_iterations=s.max_iterations,
+            variables=variables,
+        )
+        stacked = da.map_blocks(
+            pass2_block,
+            ctx,
+            params,
+            *stack,
+            new_axis=0,
+            chunks=((len(variables),), *stack[0].chunks),
+            dtype=np.float32,
+            meta=np.empty((0, 0, 0), np.float32),
+        )
+        descriptions = {**FLUX_OUTPUTS, **COMPONENT_OUTPUTS}
+        tags = {
+            "scene_id": scene.id,
+            "acquired_utc": scene.acquired_utc.isoformat(),
+            "software": f"rasterbudget {__version__}",
+        }
+        sources, targets = [], []
+        for k, name in enumerate(written):
+            units, text = descriptions[name]
+            writer = AtomicRaster(
+                out_dir / f"{name}.tif", grid, "float32", np.nan, block, name, units, text, tags
+            )
+            writers.append(writer)
+            sources.append(stacked[k])
+            targets.append(writer)
+        qa_writer = AtomicRaster(
+            out_dir / f"{QA_OUTPUT}.tif",
+            grid,
+            "uint16",
+            0,
+            block,
+            QA_OUTPUT,
+            "bitmask",
+            "QA flags, bits in the README",
+            tags,
+        )
+        writers.append(qa_writer)
+        sources.append(stacked[variables.index(QA_OUTPUT)].astype(np.uint16))
+        targets.append(qa_writer)
+        # A lock per file: GDAL handles are not thread-safe, but different files may be
+        # written at once (AtomicRaster.__setitem__ holds its own lock, so lock=False here).
+        store = da.store(sources, targets, lock=False, compute=False)
+
+        tile = settings.tile_size
+        flux_names = list(FLUX_OUTPUTS)
+        tiled = stacked[: len(flux_names)].rechunk((len(flux_names), tile, tile))
+        tile_delayed = tiled.to_delayed()[0]
+        tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
+        class_codes = table.codes
+        class_parts = [
+            dask.delayed(_class_block)(b, variables, class_codes)
+            for b in stacked.to_delayed().ravel()
+        ]
+        class_total = _tree_reduce(class_parts, _combine_class)
+        with TaskProgress(f"{scene.id} pass 2", settings.progress):
+            _, tile_stats, (class_hist, class_moments) = dask.compute(
+                store, tile_stats, class_total
+            )
+        outputs = {w.path.stem: w.commit() for w in writers}
+        writers = []
+        timings["pass2_s"] = time.perf_counter() - t0
+    except RasterBudgetError:
+        raise
+    except (OSError, RuntimeError) as err:
+        # Errors raised while reading blocks (truncated or corrupt files) surface here.
+        message = str(err).splitlines()[0] if str(err) else type(err).__name__
+        if (
+            "rasterio" in type(err).__module__
+            or "CPLE" in type(err).__name__
+            or isinstance(err, OSError)
+        ):
+            raise InputRasterError(
+                f"scene {scene.id}: reading or writing rasters failed ({message}); check that "
+                f"the input files are complete GeoTIFFs ({', '.join(map(str, paths.values()))})."
+            ) from err
+        raise
+    finally:
+        for w in writers:
+            w.abort()
+        env.__exit__(None, None, None)
+
+    # ---------------- summaries, quick-look, manifest (small, written atomically)
+    t0 = time.perf_counter()
+    tile_stats = np.array([[np.asarray(s) for s in row] for row in tile_stats])
+    tile_info = []
+    ty, tx = tile_stats.shape[:2]
+    for i in range(ty):
+        for j in range(tx):
+            r0, c0 = i * tile, j * tile
+            r1, c1 = min(r0 + tile, grid.height), min(c0 + tile, grid.width)
+            left, top = grid.transform * (c0, r0)
+            right, bottom = grid.transform * (c1, r1)
+            tile_info.append(
+                {
+                    "tile_row": i,
+                    "tile_col": j,
+                    "row_off": r0,
+                    "col_off": c0,
+                    "height": r1 - r0,
+                    "width": c1 - c0,
+                    "pixels": (r1 - r0) * (c1 - c0),
+                    "left": left,
+                    "bottom": bottom,
+                    "right": right,
+                    "top": top,
+                }
+            )
+    tiles = tile_rows(tile_stats, flux_names, tile_info)
+    outputs["tiles.csv"] = write_text_atomic(out_dir / "tiles.csv", rows_to_csv(tiles))
+    outputs["tiles.geojson"] = write_text_atomic(
+        out_dir / "tiles.geojson", tiles_geojson(tiles, grid.crs.to_string())
+    )
+    pixel_area = abs(grid.transform.a * grid.transform.e)
+    classes = class_rows(class_hist, class_moments, table, class_codes, pixel_area)
+    classes = [c for c in classes if c["valid_pixels"] > 0]
+    outputs["classes.csv"] = write_text_atomic(out_dir / "classes.csv", rows_to_csv(classes))
+    if settings.quicklook:
+        from .quicklook import write_quicklook
+
+        outputs["quicklook.png"] = write_quicklook(
+            outputs,
+            out_dir / "quicklook.png",
+            f"{scene.id}  {scene.acquired_utc:%Y-%m-%d %H:%M} UTC",
+        )
+    timings["summaries_s"] = time.perf_counter() - t0
+    timings["total_s"] = time.perf_counter() - started
+
+    qa_counts = _qa_counts(outputs[QA_OUTPUT])
+    manifest = {
+        "scene_id": scene.id,
+        "status": "complete",
+        "written_utc": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
+        "caution": CAUTION,
+        "inputs": {
+            role: {
+                **info,
+                "bytes": Path(info["path"]).stat().st_size,
+                "sha256": sha256_of(Path(info["path"])),
+            }
+            for role, info in described.items()
+        },
+        "class_table": table.source,
+        "grid": {
+            "crs": grid.crs.to_string(),
+            "transform": list(grid.transform)[:6],
+            "width": grid.width,
+            "height": grid.height,
+        },
+        "chunking": {"chunk_size": chunk, "tile_size": tile, "geotiff_block": block},
+        "parameters": json.loads(scene.model_dump_json()),
+        "scene_constants": asdict(constants),
+        "scene_facts": facts,
+        "sensible_heat_method": "anchors",
+        "anchors": {k: v.as_dict() | _anchor_xy(grid, v) for k, v in chosen.items()},
+        "calibration": calibration.as_dict(),
+        "qa_bits": {
+            f"bit {int(math.log2(b))}": {
+                "name": b.name,
+                "meaning": QA_DESCRIPTIONS[b],
+                "pixels": qa_counts.get(b.name, 0),
+            }
+            for b in QA
+        },
+        "scene_means": {c["name"]: {v: c.get(f"{v}_mean") for v in flux_names} for c in classes},
+        "outputs": {k: str(v.relative_to(out_dir)) for k, v in outputs.items()},
+        "timings_s": timings,
+        "versions": versions(),
+    }
+    outputs["manifest.json"] = write_text_atomic(
+        out_dir / "manifest.json", json.dumps(manifest, indent=2, default=_json_default)
+    )
+    return SceneResult(scene_id=scene.id, out_dir=out_dir, outputs=outputs, manifest=manifest)
+
+
+def _anchor_xy(grid: Grid, anchor: anchor_method.Anchor) -> dict:
+    x, y = grid.transform * (anchor.col + 0.5, anchor.row + 0.5)
+    return {"x": x, "y": y}
+
+
+def _qa_counts(path: Path) -> dict[str, int]:
+    """Pixels per QA bit, read back from the written QA raster block by block."""
+    import rasterio
+
+    counts = dict.fromkeys((b.name for b in QA), 0)
+    with rasterio.open(path) as src:
+        for _, window in src.block_windows(1):
+            data = src.read(1, window=window)
+            for b in QA:
+                counts[b.name] += int(np.count_nonzero(data & np.uint16(b)))
+    return counts
+
+
+def _json_default(value):
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, Path):
+        return str(value)
+    if isinstance(value, dt.datetime):
+        return value.isoformat()
+    raise TypeError(f"cannot serialise {type(value).__name__}")
+
+
+def run_recipe(recipe: Recipe, table: ClassTable, settings: RunSettings) -> list[SceneResult]:
+    """Run every scene of a recipe in order (a failure stops the run with a clear error)."""
+    results = []
+    for scene in recipe.scene:
+        try:
+            results.append(run_scene(recipe, scene, table, settings))
+        except OutputError:
+            raise
+    return results

@@ -1,0 +1,225 @@
+"""Recipe files (TOML): parsing and validation with precise, key-naming error messages.
+
+A recipe holds a ``[run]`` table, an optional ``[defaults]`` table that every scene inherits (any
+scene key), and one ``[[scene]]`` table per scene. Units sit in the key names (``_c``, ``_pct``,
+``_m_s`` ...); conversion to kelvin and SI happens here, at the boundary, and nowhere else.
+"""
+
+from __future__ import annotations
+
+import copy
+import datetime as dt
+import tomllib
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+
+from .errors import RecipeError
+
+Percent = Annotated[float, Field(ge=0.0, le=100.0)]
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class RunSettings(_Strict):
+    """``[run]``: where outputs go and how the work is chunked."""
+
+    out: str = "out"
+    chunk_size: int = Field(1024, ge=64, le=16384)
+    tile_size: int = Field(256, ge=16, le=16384)
+    class_table: str = "builtin"
+    write_components: bool = False
+    quicklook: bool = True
+
+
+class SceneInputs(_Strict):
+    """``[scene.inputs]``: raster paths, relative to the recipe file."""
+
+    albedo: str
+    surface_temperature: str
+    land_cover: str
+    ndvi: str | None = None
+    elevation: str | None = None
+
+
+class OverpassWeather(_Strict):
+    """``[scene.overpass]``: weather station readings at the acquisition time."""
+
+    station_elevation_m: float = Field(ge=-500.0, le=9000.0)
+    air_temperature_c: float = Field(ge=-60.0, le=60.0)
+    relative_humidity_pct: Percent | None = None
+    wind_speed_m_s: float | None = Field(None, gt=0.0, le=60.0)
+    wind_height_m: float = Field(2.0, gt=0.5, le=100.0)
+    shortwave_in_w_m2: float | None = Field(None, gt=0.0, le=1400.0)
+
+
+class DailyWeather(_Strict):
+    """``[scene.daily]``: daily weather for the FAO-56 daily net radiation."""
+
+    tmax_c: float = Field(ge=-60.0, le=60.0)
+    tmin_c: float = Field(ge=-60.0, le=60.0)
+    vapour_pressure_kpa: float | None = Field(None, gt=0.0, le=10.0)
+    rh_max_pct: Percent | None = None
+    rh_min_pct: Percent | None = None
+    shortwave_mj_m2: float | None = Field(None, gt=0.0, le=50.0)
+    sunshine_hours: float | None = Field(None, ge=0.0, le=24.0)
+
+    @model_validator(mode="after")
+    def _complete(self) -> DailyWeather:
+        if self.tmin_c > self.tmax_c:
+            raise ValueError(f"tmin_c ({self.tmin_c}) is above tmax_c ({self.tmax_c})")
+        if self.vapour_pressure_kpa is None and (
+            self.rh_max_pct is None or self.rh_min_pct is None
+        ):
+            raise ValueError("give vapour_pressure_kpa, or both rh_max_pct and rh_min_pct")
+        if self.shortwave_mj_m2 is None and self.sunshine_hours is None:
+            raise ValueError("give shortwave_mj_m2 (measured daily Rs) or sunshine_hours")
+        return self
+
+
+class RadiationOptions(_Strict):
+    """``[scene.radiation]``: choices in the radiation and ground-heat steps."""
+
+    longwave_in: Literal["bastiaanssen", "brutsaert"] = "bastiaanssen"
+    emissivity: Literal["class", "ndvi"] = "class"
+    ground_heat: Literal["auto", "class"] = "auto"
+    min_sun_elevation_deg: float = Field(15.0, ge=0.0, le=60.0)
+
+
+class AnchorSettings(_Strict):
+    """``[scene.anchors]``: hot/cold anchor calibration of the sensible heat flux."""
+
+    cold_percentile: float = Field(5.0, gt=0.0, lt=50.0)
+    hot_percentile: float = Field(95.0, gt=50.0, lt=100.0)
+    percentile_band: float = Field(1.0, gt=0.0, le=10.0)
+    cold_min_ndvi: float = Field(0.6, ge=-1.0, le=1.0)
+    hot_max_ndvi: float = Field(0.25, ge=-1.0, le=1.0)
+    cold_evaporative_fraction: float = Field(1.0, ge=0.0, le=1.2)
+    hot_evaporative_fraction: float = Field(0.0, ge=0.0, le=0.5)
+    cold_xy: tuple[float, float] | None = None
+    hot_xy: tuple[float, float] | None = None
+    surface_lapse_rate_k_per_km: float = Field(6.5, ge=0.0, le=15.0)
+    blending_height_m: float = Field(200.0, ge=20.0, le=1000.0)
+    station_roughness_m: float = Field(0.0148, gt=0.0, le=2.0)
+    max_iterations: int = Field(30, ge=1, le=200)
+    tolerance_k: float = Field(0.001, gt=0.0, le=1.0)
+    min_candidates: int = Field(20, ge=1)
+
+
+class Scene(_Strict):
+    """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
+
+    id: Annotated[str, Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120)]
+    acquired_utc: dt.datetime
+    inputs: SceneInputs
+    overpass: OverpassWeather
+    daily: DailyWeather
+    radiation: RadiationOptions = RadiationOptions()
+    anchors: AnchorSettings = AnchorSettings()
+
+    @field_validator("acquired_utc")
+    @classmethod
+    def _utc(cls, value: dt.datetime) -> dt.datetime:
+        if value.tzinfo is None:
+            raise ValueError(
+                "acquisition time needs a time zone; write it in UTC, e.g. 2026-06-14T17:52:00Z"
+            )
+        return value.astimezone(dt.UTC)
+
+
+class Recipe(_Strict):
+    """A whole recipe: run settings and scenes (defaults already merged into each scene)."""
+
+    run: RunSettings = RunSettings()
+    scene: list[Scene] = Field(min_length=1)
+    path: Path | None = None
+
+
+def _deep_merge(base: dict, override: dict) -> dict:
+    merged = copy.deepcopy(base)
+    for key, value in override.items():
+        if isinstance(value, dict) and isinstance(merged.get(key), dict):
+            merged[key] = _deep_merge(merged[key], value)
+        else:
+            merged[key] = copy.deepcopy(value)
+    return merged
+
+
+def _format_errors(err: ValidationError, source: str, scene_ids: list[str]) -> str:
+    parts = []
+    for e in err.errors()[:5]:
+        loc = list(e["loc"])
+        if len(loc) >= 2 and loc[0] == "scene" and isinstance(loc[1], int):
+            label = scene_ids[loc[1]] if loc[1] < len(scene_ids) else str(loc[1])
+            loc = [f"scene[{loc[1]}] ({label})", *loc[2:]]
+        key = ".".join(str(p) for p in loc) or "(top level)"
+        message = e["msg"]
+        if e["type"] == "extra_forbidden":
+            message = "unknown key; check its spelling against the README's recipe reference"
+        elif e["type"] == "missing":
+            message = "required key is missing"
+        value = e.get("input")
+        shown = (
+            ""
+            if e["type"] in ("missing", "extra_forbidden") or isinstance(value, dict)
+            else (f" (got {value!r})")
+        )
+        parts.append(f"{key}: {message}{shown}")
+    more = len(err.errors()) - 5
+    tail = f"; and {more} more" if more > 0 else ""
+    return f"recipe {source}: " + "; ".join(parts) + tail
+
+
+def parse_recipe(
+    data: dict[str, Any], source: str = "<recipe>", path: Path | None = None
+) -> Recipe:
+    """Validate a recipe dictionary, merging ``[defaults]`` into each scene."""
+    data = dict(data)
+    defaults = data.pop("defaults", {}) or {}
+    if not isinstance(defaults, dict):
+        raise RecipeError(f"recipe {source}: [defaults] must be a table.")
+    scenes = data.get("scene")
+    if scenes is None:
+        raise RecipeError(f"recipe {source}: no [[scene]] table; add at least one scene.")
+    if not isinstance(scenes, list):
+        raise RecipeError(f"recipe {source}: 'scene' must be an array of tables ([[scene]]).")
+    data["scene"] = [_deep_merge(defaults, s) if isinstance(s, dict) else s for s in scenes]
+    scene_ids = [str(s.get("id", "?")) if isinstance(s, dict) else "?" for s in data["scene"]]
+    try:
+        recipe = Recipe(**data, path=path)
+    except ValidationError as err:
+        raise RecipeError(_format_errors(err, source, scene_ids)) from None
+    except TypeError as err:
+        raise RecipeError(f"recipe {source}: {err}.") from None
+    ids = [s.id for s in recipe.scene]
+    repeated = sorted({i for i in ids if ids.count(i) > 1})
+    if repeated:
+        raise RecipeError(
+            f"recipe {source}: scene id(s) {repeated} used twice; ids must be unique."
+        )
+    return recipe
+
+
+def load_recipe(path: str | Path) -> Recipe:
+    """Read a TOML recipe file and validate it."""
+    path = Path(path)
+    if not path.is_file():
+        raise RecipeError(f"recipe {path} does not exist; give the path of a .toml recipe file.")
+    try:
+        data = tomllib.loads(path.read_text("utf-8"))
+    except tomllib.TOMLDecodeError as err:
+        raise RecipeError(f"recipe {path} is not valid TOML: {err}.") from None
+    except UnicodeDecodeError:
+        raise RecipeError(f"recipe {path} is not a UTF-8 text file.") from None
+    return parse_recipe(data, source=str(path), path=path.resolve())
+
+
+def resolve_path(recipe: Recipe, value: str) -> Path:
+    """Resolve a path from the recipe relative to the recipe file's folder."""
+    p = Path(value).expanduser()
+    if p.is_absolute() or recipe.path is None:
+        return p
+    return (recipe.path.parent / p).resolve()

@@ -1,0 +1,208 @@
+"""Tile-level and per-class statistics, computed per block in the same dask graph as the outputs.
+
+Tile statistics are exact (numpy on each tile). Per-class percentiles come from fixed-width
+histograms merged across blocks; each is exact to its variable's bin width (``HISTOGRAM_RANGES``),
+so they do not depend on chunking. Means, standard deviations, minima and maxima are exact.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+
+import numpy as np
+
+TILE_STATS = ("mean", "std", "min", "p10", "p50", "p90", "max")
+
+#: Histogram range and bin width per variable for per-class percentiles: (low, high, step).
+HISTOGRAM_RANGES: dict[str, tuple[float, float, float]] = {
+    "net_radiation": (-300.0, 1200.0, 0.1),
+    "ground_heat_flux": (-300.0, 700.0, 0.1),
+    "sensible_heat_flux": (-400.0, 1200.0, 0.1),
+    "latent_heat_flux": (0.0, 1200.0, 0.1),
+    "evaporative_fraction": (0.0, 1.0, 0.0001),
+    "et_hourly": (0.0, 2.0, 0.0002),
+    "et_daily": (0.0, 20.0, 0.002),
+}
+
+
+def tile_statistics(block: np.ndarray) -> np.ndarray:
+    """Statistics of one tile for each variable.
+
+    Parameters
+    ----------
+    block : array (n_variables, rows, cols), NaN = no value.
+
+    Returns
+    -------
+    array (n_variables, 1 + len(TILE_STATS)): valid count, then TILE_STATS.
+    """
+    out = np.full((block.shape[0], 1 + len(TILE_STATS)), np.nan)
+    for v in range(block.shape[0]):
+        values = block[v][np.isfinite(block[v])].astype(np.float64)
+        out[v, 0] = values.size
+        if values.size:
+            p10, p50, p90 = np.percentile(values, [10, 50, 90])
+            out[v, 1:] = (values.mean(), values.std(), values.min(), p10, p50, p90, values.max())
+    return out
+
+
+def _bin_layout() -> tuple[dict[str, tuple[int, int]], int]:
+    offsets, start = {}, 0
+    for name, (low, high, step) in HISTOGRAM_RANGES.items():
+        n = round((high - low) / step)
+        offsets[name] = (start, n)
+        start += n
+    return offsets, start
+
+
+BIN_OFFSETS, TOTAL_BINS = _bin_layout()
+CLASS_MOMENTS = ("count", "sum", "sum_sq", "min", "max")
+
+
+def class_histograms(
+    values: dict[str, np.ndarray], codes: np.ndarray, class_codes: list[int]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Per-class histograms and moments of one block.
+
+    Returns ``(hist, moments)``: ``hist`` int64 (n_classes, TOTAL_BINS); ``moments`` float64
+    (n_classes, n_variables, len(CLASS_MOMENTS)) with min/max as +inf/-inf where empty.
+    """
+    names = list(HISTOGRAM_RANGES)
+    hist = np.zeros((len(class_codes), TOTAL_BINS), dtype=np.int64)
+    moments = np.zeros((len(class_codes), len(names), len(CLASS_MOMENTS)))
+    moments[..., 3] = np.inf
+    moments[..., 4] = -np.inf
+    for k, code in enumerate(class_codes):
+        in_class = codes == code
+        if not in_class.any():
+            continue
+        for v, name in enumerate(names):
+            x = values[name][in_class]
+            x = x[np.isfinite(x)].astype(np.float64)
+            if not x.size:
+                continue
+            low, _, step = HISTOGRAM_RANGES[name]
+            start, n = BIN_OFFSETS[name]
+            bins = np.clip(np.floor((x - low) / step), 0, n - 1).astype(np.intp)
+            hist[k, start : start + n] += np.bincount(bins, minlength=n)
+            moments[k, v] = (x.size, x.sum(), (x * x).sum(), x.min(), x.max())
+    return hist, moments
+
+
+def histogram_percentile(counts: np.ndarray, low: float, step: float, q: float) -> float:
+    """Percentile ``q`` [%] from a fixed-width histogram, linear within the bin holding the rank."""
+    total = counts.sum()
+    if total == 0:
+        return float("nan")
+    rank = q / 100.0 * total
+    upper = np.cumsum(counts)
+    k = int(np.searchsorted(upper, rank, side="left"))
+    k = min(k, counts.size - 1)
+    below = upper[k] - counts[k]
+    inside = (rank - below) / counts[k] if counts[k] else 0.0
+    return float(low + (k + inside) * step)
+
+
+def class_rows(
+    hist: np.ndarray, moments: np.ndarray, class_table, class_codes: list[int], pixel_area: float
+) -> list[dict]:
+    """Rows of ``classes.csv``: statistics per class and the split of available energy."""
+    names = list(HISTOGRAM_RANGES)
+    rows = []
+    for k, code in enumerate(class_codes):
+        n_pixels = int(moments[k, 0, 0])
+        row: dict = {
+            "code": code,
+            "name": class_table.by_code(code).name,
+            "valid_pixels": n_pixels,
+            "area_ha": n_pixels * pixel_area / 1e4,
+        }
+        for v, name in enumerate(names):
+            count, total, total_sq, vmin, vmax = moments[k, v]
+            low, _, step = HISTOGRAM_RANGES[name]
+            start, n = BIN_OFFSETS[name]
+            counts = hist[k, start : start + n]
+            if count:
+                mean = total / count
+                std = float(np.sqrt(max(total_sq / count - mean * mean, 0.0)))
+                stats = dict(
+                    mean=mean,
+                    std=std,
+                    min=vmin,
+                    p10=histogram_percentile(counts, low, step, 10),
+                    p50=histogram_percentile(counts, low, step, 50),
+                    p90=histogram_percentile(counts, low, step, 90),
+                    max=vmax,
+                )
+            else:
+                stats = dict.fromkeys(TILE_STATS, float("nan"))
+            for stat, value in stats.items():
+                row[f"{name}_{stat}"] = value
+        h_sum = moments[k, names.index("sensible_heat_flux"), 1]
+        le_sum = moments[k, names.index("latent_heat_flux"), 1]
+        available = h_sum + le_sum  # closure: Rn - G = H + LE on every pixel
+        row["share_to_sensible_heat"] = h_sum / available if available > 0 else float("nan")
+        row["share_to_latent_heat"] = le_sum / available if available > 0 else float("nan")
+        rows.append(row)
+    return rows
+
+
+def tile_rows(stats: np.ndarray, names: list[str], tile_bounds: list[dict]) -> list[dict]:
+    """Rows of ``tiles.csv`` from the (tiles_y, tiles_x, n_variables, 1 + n_stats) array."""
+    rows = []
+    ty, tx = stats.shape[:2]
+    for i in range(ty):
+        for j in range(tx):
+            info = tile_bounds[i * tx + j]
+            s = stats[i, j]
+            n_pixels = info["pixels"]
+            valid = int(s[0, 0])
+            row = {**info, "valid_pixels": valid, "valid_fraction": valid / n_pixels}
+            for v, name in enumerate(names):
+                for k, stat in enumerate(TILE_STATS, start=1):
+                    row[f"{name}_{stat}"] = s[v, k]
+            rows.append(row)
+    return rows
+
+
+def _fmt(value) -> str:
+    if isinstance(value, float):
+        return "" if not np.isfinite(value) else f"{value:.6g}"
+    return str(value)
+
+
+def rows_to_csv(rows: list[dict]) -> str:
+    buffer = io.StringIO()
+    writer = csv.DictWriter(buffer, fieldnames=list(rows[0]), lineterminator="\n")
+    writer.writeheader()
+    for row in rows:
+        writer.writerow({k: _fmt(v) for k, v in row.items()})
+    return buffer.getvalue()
+
+
+def tiles_geojson(rows: list[dict], crs_name: str) -> str:
+    """GeoJSON FeatureCollection of tile polygons in the grid's CRS (named in ``crs``)."""
+    features = []
+    for row in rows:
+        x0, y0, x1, y1 = row["left"], row["bottom"], row["right"], row["top"]
+        props = {
+            k: (None if isinstance(v, float) and not np.isfinite(v) else v) for k, v in row.items()
+        }
+        features.append(
+            {
+                "type": "Feature",
+                "geometry": {
+                    "type": "Polygon",
+                    "coordinates": [[[x0, y0], [x1, y0], [x1, y1], [x0, y1], [x0, y0]]],
+                },
+                "properties": props,
+            }
+        )
+    collection = {
+        "type": "FeatureCollection",
+        "crs": {"type": "name", "properties": {"name": crs_name}},
+        "features": features,
+    }
+    return json.dumps(collection, default=float)

@@ -1,0 +1,245 @@
+"""The surface state of one block: radiation, ground heat, air properties and QA, per pixel.
+
+Composes the pure physics functions for a block of pixels. Numpy in, numpy out; no dask, no I/O,
+so the pipeline can apply it per chunk (pass 1 and pass 2 call the same function) and the result
+does not depend on where chunk boundaries fall.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .landcover import ClassTable
+from .physics import ground, radiation, turbulence
+from .physics.constants import ZERO_CELSIUS
+from .physics.solar import (
+    cos_incidence,
+    cos_solar_zenith,
+    daylight_hours,
+    extraterrestrial_radiation_daily,
+    hour_angle,
+)
+from .qa import QA, QA_NO_FLUXES, QA_NOT_ANCHOR
+
+#: Standard-atmosphere lapse rate used to carry the station air temperature to each pixel's
+#: elevation [K m-1] (ICAO standard atmosphere, 6.5 K km-1).
+LAPSE_RATE = 0.0065
+
+#: Physically plausible land-surface temperature range [K] (common practice).
+PLAUSIBLE_SURFACE_TEMPERATURE = (200.0, 350.0)
+
+
+@dataclass(frozen=True)
+class SceneConstants:
+    """Scalars that hold for the whole scene, in SI units and kelvin."""
+
+    day_of_year: int
+    utc_hour: float
+    declination: float  # [rad]
+    inverse_distance: float  # [-]
+    air_temperature: float  # station air temperature at overpass [K]
+    station_elevation: float  # [m]
+    vapour_pressure: float | None  # at overpass [kPa]
+    station_transmissivity: float | None  # from measured shortwave, None: FAO-56 eq. 37
+    longwave_in_method: str
+    emissivity_method: str
+    ground_heat_method: str
+    min_cos_incidence: float
+    tmax: float  # [K]
+    tmin: float  # [K]
+    vapour_pressure_daily: float  # [kPa]
+    daily_clearness: float | None  # station Rs / Rso, None: from sunshine hours
+    sunshine_hours: float | None
+    min_ndvi_cold: float
+    max_ndvi_hot: float
+    surface_lapse_rate: float = 0.0  # [K m-1] for the elevation-adjusted Ts of the dT relation
+
+
+@dataclass(frozen=True)
+class ClassLookups:
+    """256-entry lookup arrays of class properties (code -> value)."""
+
+    known: np.ndarray
+    emissivity: np.ndarray
+    roughness_length: np.ndarray
+    ground_heat_ratio: np.ndarray
+    ground_heat_from_ndvi: np.ndarray
+    albedo_min: np.ndarray
+    albedo_max: np.ndarray
+    cold_anchor: np.ndarray
+    hot_anchor: np.ndarray
+    residual_reliable: np.ndarray
+
+    @classmethod
+    def from_table(cls, table: ClassTable) -> ClassLookups:
+        as_bool = {"ground_heat_from_ndvi", "cold_anchor", "hot_anchor", "residual_reliable"}
+        values = {}
+        for name in cls.__dataclass_fields__:
+            if name == "known":
+                values[name] = table.known()
+            elif name in as_bool:
+                values[name] = table.lookup(name, fill=0.0).astype(bool)
+            else:
+                values[name] = table.lookup(name, fill=np.nan)
+        return cls(**values)
+
+
+def land_cover_codes(land_cover: np.ndarray) -> np.ndarray:
+    """Land-cover block (float, NaN = nodata) to integer codes; 0 where nodata or out of 0-255."""
+    ok = np.isfinite(land_cover) & (land_cover >= 0) & (land_cover <= 255)
+    return np.where(ok, land_cover, 0).astype(np.intp)
+
+
+def surface_block(
+    c: SceneConstants,
+    lookups: ClassLookups,
+    albedo: np.ndarray,
+    surface_temperature: np.ndarray,
+    land_cover: np.ndarray,
+    latitude: np.ndarray,
+    longitude: np.ndarray,
+    ndvi: np.ndarray | None = None,
+    elevation: np.ndarray | None = None,
+    slope: np.ndarray | None = None,
+    aspect: np.ndarray | None = None,
+) -> dict[str, np.ndarray]:
+    """Per-pixel radiation budget, ground heat flux, air properties and QA for one block.
+
+    Parameters
+    ----------
+    albedo, surface_temperature, land_cover : 2-D arrays (NaN = nodata). [-], [K], [code]
+    latitude, longitude : pixel centres. [rad], [degrees east]
+    ndvi, elevation : optional 2-D arrays (NaN = nodata). [-], [m]
+    slope, aspect : terrain from the DEM, clockwise from north. [rad]
+
+    Returns
+    -------
+    dict of 2-D arrays: ``qa`` (uint16), ``valid`` (fluxes computable), ``net_radiation``,
+    ``ground_heat_flux``, ``available_energy``, ``shortwave_in``, ``longwave_in``, ``longwave_out``
+    [W m-2], ``net_radiation_daily`` [MJ m-2 d-1], ``roughness_length`` [m], ``air_density``
+    [kg m-3], ``datum_surface_temperature`` (Ts carried to the station elevation with
+    ``surface_lapse_rate``) [K], ``cold_candidate`` and ``hot_candidate`` (bool).
+    """
+    codes = land_cover_codes(land_cover)
+    known = lookups.known[codes] & np.isfinite(land_cover)
+    missing = ~np.isfinite(albedo) | ~np.isfinite(surface_temperature) | ~np.isfinite(land_cover)
+    if ndvi is not None:
+        missing |= ~np.isfinite(ndvi)
+    if elevation is not None:
+        missing |= ~np.isfinite(elevation)
+    t_low, t_high = PLAUSIBLE_SURFACE_TEMPERATURE
+    with np.errstate(invalid="ignore"):
+        implausible_ts = np.isfinite(surface_temperature) & (
+            (surface_temperature < t_low) | (surface_temperature > t_high)
+        )
+        albedo_out = (
+            np.isfinite(albedo)
+            & known
+            & ((albedo < lookups.albedo_min[codes]) | (albedo > lookups.albedo_max[codes]))
+        )
+
+    qa = np.zeros(albedo.shape, dtype=np.uint16)
+    qa |= np.where(missing, np.uint16(QA.INPUT_MISSING), np.uint16(0))
+    qa |= np.where(implausible_ts, np.uint16(QA.SURFACE_TEMPERATURE_IMPLAUSIBLE), np.uint16(0))
+    qa |= np.where(albedo_out, np.uint16(QA.ALBEDO_OUT_OF_CLASS_RANGE), np.uint16(0))
+    qa |= np.where(~known & np.isfinite(land_cover), np.uint16(QA.UNKNOWN_LAND_COVER), np.uint16(0))
+    qa |= np.where(
+        known & ~lookups.residual_reliable[codes], np.uint16(QA.RESIDUAL_UNRELIABLE_CLASS), 0
+    ).astype(np.uint16)
+
+    z = np.full(albedo.shape, c.station_elevation) if elevation is None else elevation
+    omega = hour_angle(c.utc_hour, longitude, c.day_of_year)
+    if slope is None:
+        cos_theta = cos_solar_zenith(latitude, c.declination, omega)
+    else:
+        cos_theta = cos_incidence(latitude, c.declination, omega, slope, aspect)
+    low_sun = ~(cos_theta >= c.min_cos_incidence)
+    qa |= np.where(low_sun, np.uint16(QA.LOW_SUN_OR_SHADOW), np.uint16(0))
+
+    # Shortwave: FAO-56 eq. 37 clear-sky transmissivity, or the station's measured value carried to
+    # each pixel's elevation with the same elevation dependence.
+    tau = radiation.clear_sky_transmissivity(z)
+    if c.station_transmissivity is not None:
+        tau = tau * (
+            c.station_transmissivity / radiation.clear_sky_transmissivity(c.station_elevation)
+        )
+    sw_in = radiation.shortwave_in(cos_theta, c.inverse_distance, tau)
+
+    air_temperature = c.air_temperature - LAPSE_RATE * (z - c.station_elevation)
+    if c.longwave_in_method == "brutsaert":
+        eps_air = radiation.atmospheric_emissivity_brutsaert(c.vapour_pressure, air_temperature)
+    else:
+        eps_air = radiation.atmospheric_emissivity_bastiaanssen(np.minimum(tau, 0.99))
+    if c.emissivity_method == "ndvi" and ndvi is not None:
+        eps_surface = radiation.surface_emissivity_from_ndvi(ndvi)
+        eps_surface = np.where(
+            lookups.ground_heat_from_ndvi[codes], eps_surface, lookups.emissivity[codes]
+        )
+    else:
+        eps_surface = lookups.emissivity[codes]
+    lw_in = radiation.longwave_emitted(eps_air, air_temperature)
+    lw_out = radiation.longwave_emitted(eps_surface, surface_temperature)
+    rn = radiation.net_radiation(albedo, sw_in, lw_in, lw_out, eps_surface)
+
+    ratio = lookups.ground_heat_ratio[codes]
+    if ndvi is not None and c.ground_heat_method == "auto":
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ndvi_ratio = ground.ground_heat_ratio_ndvi(surface_temperature, albedo, ndvi)
+        ratio = np.where(lookups.ground_heat_from_ndvi[codes], ndvi_ratio, ratio)
+    g = ground.ground_heat_flux(rn, ratio)
+    available = rn - g
+    with np.errstate(invalid="ignore"):
+        no_energy = ~(available >= 1.0)
+    qa |= np.where(no_energy & ~missing, np.uint16(QA.NO_AVAILABLE_ENERGY), np.uint16(0))
+
+    # FAO-56 daily net radiation per pixel (eqs. 21, 34-40) with the pixel's own albedo.
+    ra = extraterrestrial_radiation_daily(latitude, c.day_of_year)
+    rso = radiation.clear_sky_shortwave_daily(ra, z)
+    if c.daily_clearness is not None:
+        rs = c.daily_clearness * rso
+    else:
+        n_max = daylight_hours(latitude, c.day_of_year)
+        rs = radiation.shortwave_daily_from_sunshine(ra, np.minimum(c.sunshine_hours, n_max), n_max)
+    rnl = radiation.net_longwave_daily(c.tmax, c.tmin, c.vapour_pressure_daily, rs, rso)
+    rn_daily = radiation.net_radiation_daily(albedo, rs, rnl)
+
+    rho = turbulence.air_density(turbulence.air_pressure(z), air_temperature)
+
+    valid = (qa & np.uint16(QA_NO_FLUXES)) == 0
+    clean = (qa & np.uint16(QA_NOT_ANCHOR)) == 0
+    with np.errstate(invalid="ignore"):
+        ndvi_ok_cold = True if ndvi is None else ndvi >= c.min_ndvi_cold
+        ndvi_ok_hot = True if ndvi is None else ndvi <= c.max_ndvi_hot
+    cold = clean & lookups.cold_anchor[codes] & ndvi_ok_cold
+    hot = clean & lookups.hot_anchor[codes] & ndvi_ok_hot
+
+    # Surface temperature carried to the station elevation for the dT = a + b Ts relation, so that
+    # cool high ground is not mistaken for wet ground (common practice with a DEM).
+    datum_ts = surface_temperature + c.surface_lapse_rate * (z - c.station_elevation)
+
+    nan = np.float64(np.nan)
+    return {
+        "qa": qa,
+        "valid": valid,
+        "codes": codes,
+        "surface_temperature": surface_temperature,
+        "datum_surface_temperature": datum_ts,
+        "net_radiation": np.where(valid, rn, nan),
+        "ground_heat_flux": np.where(valid, g, nan),
+        "available_energy": np.where(valid, available, nan),
+        "shortwave_in": np.where(valid, sw_in, nan),
+        "longwave_in": np.where(valid, lw_in, nan),
+        "longwave_out": np.where(valid, lw_out, nan),
+        "net_radiation_daily": np.where(valid, rn_daily, nan),
+        "roughness_length": lookups.roughness_length[codes],
+        "air_density": rho,
+        "cold_candidate": cold,
+        "hot_candidate": hot,
+    }
+
+
+def kelvin(celsius: float) -> float:
+    """Degrees Celsius to kelvin."""
+    return celsius + ZERO_CELSIUS
