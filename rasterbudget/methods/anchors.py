@@ -352,11 +352,12 @@ def sensible_heat_block(
     dT = a + b Ts_datum (Ts_datum: the elevation-adjusted surface temperature the anchors were
     calibrated on; the plain Ts when not given), then H = rho cp dT / rah with rah iterated to
     stability convergence pixel by pixel. A pixel stops iterating once its H changes by less than
-        surface_temperature if datum_surface_temperature is None else datum_surface_temperature
+    ``tolerance`` [W m-2], so its value never depends on the other pixels of its block (hence not
+    on chunking).
     """
-    ts_for_dt = (
-        surface_temperature if datum_surface_temperature is None else (datum_surface_temperature)
-    )
+    ts_for_dt = surface_temperature
+    if datum_surface_temperature is not None:
+        ts_for_dt = datum_surface_temperature
     dt = calibration.a + calibration.b * ts_for_dt
     u_b = calibration.blending_wind_speed
     inverse_length = np.zeros_like(surface_temperature)
