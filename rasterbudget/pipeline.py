@@ -287,8 +287,9 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, *arrays, block_info=None)
         0.5 * (ctx.constants.tmax + ctx.constants.tmin)
     )
     et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
+    # A negative daily net radiation (snow, some nights-dominated days) evaporates nothing.
     et_daily = partition.et_daily_from_evaporative_fraction(
-        ef, state["net_radiation_daily"], lam_daily
+        ef, np.maximum(state["net_radiation_daily"], 0.0), lam_daily
     )
 
     def bit(mask, flag):
@@ -620,8 +621,8 @@ def run_scene(
         for j in range(tx):
             r0, c0 = i * tile, j * tile
             r1, c1 = min(r0 + tile, grid.height), min(c0 + tile, grid.width)
-            left, top = grid.transform * (c0, r0)
-            right, bottom = grid.transform * (c1, r1)
+            left, top = _map_xy(grid, r0, c0)
+            right, bottom = _map_xy(grid, r1, c1)
             tile_info.append(
                 {
                     "tile_row": i,
@@ -705,8 +706,14 @@ def run_scene(
 
 
 def _anchor_xy(grid: Grid, anchor: anchor_method.Anchor) -> dict:
-    x, y = grid.transform * (anchor.col + 0.5, anchor.row + 0.5)
+    x, y = _map_xy(grid, anchor.row + 0.5, anchor.col + 0.5)
     return {"x": x, "y": y}
+
+
+def _map_xy(grid: Grid, row: float, col: float) -> tuple[float, float]:
+    """Map coordinates of a (fractional) pixel position on a north-up grid."""
+    t = grid.transform
+    return t.c + col * t.a, t.f + row * t.e
 
 
 def _qa_counts(path: Path) -> dict[str, int]:

@@ -169,7 +169,7 @@ def tile_rows(stats: np.ndarray, names: list[str], tile_bounds: list[dict]) -> l
 
 def _fmt(value) -> str:
     if isinstance(value, float):
-        return "" if not np.isfinite(value) else f"{value:.6g}"
+        return "" if not np.isfinite(value) else f"{value:.10g}"
     return str(value)
 
 

@@ -5,9 +5,8 @@ Sources
 - Bastiaanssen, W. G. M. (2000). Journal of Hydrology 229, 87–100.
 """
 
-from numpy.typing import ArrayLike
-
 import numpy as np
+from numpy.typing import ArrayLike
 
 from rasterbudget.physics.constants import ZERO_CELSIUS
 

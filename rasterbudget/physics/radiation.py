@@ -96,8 +96,11 @@ def shortwave_in(
     -----
     .. math:: R_{s\downarrow} = G_{sc} \max(\cos\theta, 0) \, d_r \, \tau_{sw}
     """
-    return solar_constant * np.maximum(cos_incidence, 0.0) * inverse_relative_distance * (
-        transmissivity
+    return (
+        solar_constant
+        * np.maximum(cos_incidence, 0.0)
+        * inverse_relative_distance
+        * (transmissivity)
     )
 
 

@@ -25,9 +25,7 @@ def test_ground_heat_ratio_ndvi_matches_published_form():
     ts = rng.uniform(280.0, 330.0, 500)
     albedo = rng.uniform(0.05, 0.4, 500)
     ndvi = rng.uniform(-0.2, 0.9, 500)
-    printed = (ts - 273.15) / albedo * (0.0038 * albedo + 0.0074 * albedo**2) * (
-        1 - 0.98 * ndvi**4
-    )
+    printed = (ts - 273.15) / albedo * (0.0038 * albedo + 0.0074 * albedo**2) * (1 - 0.98 * ndvi**4)
     np.testing.assert_allclose(
         ground.ground_heat_ratio_ndvi(ts, albedo, ndvi), printed, rtol=1e-12, atol=1e-15
     )
