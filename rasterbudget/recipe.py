@@ -86,7 +86,7 @@ class RadiationOptions(_Strict):
     longwave_in: Literal["bastiaanssen", "brutsaert"] = "bastiaanssen"
     emissivity: Literal["class", "ndvi"] = "class"
     ground_heat: Literal["auto", "class"] = "auto"
-    min_sun_elevation_deg: float = Field(15.0, ge=0.0, le=60.0)
+    min_sun_elevation_deg: float = Field(10.0, ge=0.0, le=60.0)
 
 
 class AnchorSettings(_Strict):
