@@ -359,21 +359,28 @@ def sensible_heat_block(
     if datum_surface_temperature is not None:
         ts_for_dt = datum_surface_temperature
     dt = calibration.a + calibration.b * ts_for_dt
-    u_b = calibration.blending_wind_speed
-    inverse_length = np.zeros_like(surface_temperature)
-    h = np.full_like(surface_temperature, np.nan)
-    active = np.isfinite(surface_temperature) & np.isfinite(roughness_length)
-    converged = ~active
+    h = np.full(surface_temperature.shape, np.nan)
+    converged = np.zeros(surface_temperature.shape, dtype=bool)
+    active = np.isfinite(surface_temperature) & np.isfinite(roughness_length) & np.isfinite(dt)
+    # Iterate on a compact copy of the still-unconverged pixels, shrinking it as pixels converge.
+    where = np.flatnonzero(active)
+    z0m, rho, ts, dtc = (
+        np.ravel(x)[where] for x in (roughness_length, air_density, surface_temperature, dt)
+    )
+    inverse_length = np.zeros(where.size)
+    h_prev = np.full(where.size, np.nan)
+    h_flat, conv_flat = h.reshape(-1), converged.reshape(-1)
     for _ in range(max_iterations):
-        idx = np.nonzero(active & ~converged)
-        if idx[0].size == 0:
+        if where.size == 0:
             break
-        u_star, rah = _resistance(u_b, blending_height, roughness_length[idx], inverse_length[idx])
-        h_new = turbulence.sensible_heat_flux(air_density[idx], dt[idx], rah)
-        done = np.abs(h_new - h[idx]) < tolerance
-        h[idx] = h_new
-        converged[idx] = done
-        inverse_length[idx] = _inverse_obukhov(
-            air_density[idx], u_star, surface_temperature[idx], h_new
+        u_star, rah = _resistance(
+            calibration.blending_wind_speed, blending_height, z0m, inverse_length
         )
+        h_new = turbulence.sensible_heat_flux(rho, dtc, rah)
+        h_flat[where] = h_new
+        done = np.abs(h_new - h_prev) < tolerance
+        conv_flat[where[done]] = True
+        keep = ~done
+        inverse_length = _inverse_obukhov(rho[keep], u_star[keep], ts[keep], h_new[keep])
+        where, z0m, rho, ts, dtc, h_prev = (x[keep] for x in (where, z0m, rho, ts, dtc, h_new))
     return h, converged | ~active

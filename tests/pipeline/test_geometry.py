@@ -1,0 +1,41 @@
+"""Pixel-centre coordinates: the interpolated lattice against pyproj on every pixel."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from pyproj import Transformer
+from rasterio.crs import CRS
+from rasterio.transform import from_origin
+
+from rasterbudget.grid import Grid
+from rasterbudget.pipeline import pixel_lonlat
+
+
+@pytest.mark.parametrize(
+    ("crs", "origin", "size", "tolerance_deg"),
+    [
+        ("EPSG:32613", (480000.0, 4430000.0), 30.0, 1e-7),  # UTM, the demo
+        # polar stereographic near 75 S, meridians converge fast: 1e-4 deg = 0.024 s of solar time
+        ("EPSG:3031", (-1.2e6, 1.5e6), 250.0, 1e-4),
+        ("EPSG:4326", (-105.3, 40.1), 0.0003, 1e-12),  # geographic: linear, exact
+    ],
+)
+def test_interpolated_lonlat_matches_direct_projection(crs, origin, size, tolerance_deg):
+    grid = Grid(CRS.from_string(crs), from_origin(*origin, size, size), 203, 157)
+    rows, cols = slice(5, 150), slice(17, 203)
+    lon, lat = pixel_lonlat(grid, rows, cols)
+    x = origin[0] + (np.arange(cols.start, cols.stop) + 0.5) * size
+    y = origin[1] - (np.arange(rows.start, rows.stop) + 0.5) * size
+    xx, yy = np.meshgrid(x, y)
+    lon_ref, lat_ref = Transformer.from_crs(crs, "EPSG:4326", always_xy=True).transform(xx, yy)
+    np.testing.assert_allclose(lon, lon_ref, rtol=0, atol=tolerance_deg)
+    np.testing.assert_allclose(np.degrees(lat), lat_ref, rtol=0, atol=tolerance_deg)
+
+
+def test_lonlat_does_not_depend_on_the_window():
+    grid = Grid(CRS.from_epsg(32613), from_origin(480000.0, 4430000.0, 30.0, 30.0), 100, 100)
+    whole_lon, whole_lat = pixel_lonlat(grid, slice(0, 100), slice(0, 100))
+    part_lon, part_lat = pixel_lonlat(grid, slice(37, 71), slice(13, 90))
+    np.testing.assert_array_equal(part_lon, whole_lon[37:71, 13:90])
+    np.testing.assert_array_equal(part_lat, whole_lat[37:71, 13:90])
