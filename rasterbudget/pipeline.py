@@ -258,7 +258,7 @@ def _state(ctx: BlockContext, arrays, rows: slice, cols: slice) -> dict[str, np.
     )
 
 
-def pass1_block(ctx: BlockContext, location, *arrays) -> np.ndarray:
+def pass1_block(ctx: BlockContext, location, *arrays) -> tuple:
     """Pass 1 for one block: surface state, then the anchor histograms."""
     (r0, r1), (c0, c1) = location
     state = _state(ctx, arrays, slice(r0, r1), slice(c0, c1))
@@ -376,12 +376,14 @@ def _tree_reduce(items: list, combine, split_every: int = 8):
 
 
 def _combine_class(a, b):
-    hist = a[0] + b[0]
+    hists = dict(a[0])
+    for key, hist in b[0].items():
+        hists[key] = hist.merge(hists.get(key))
     moments = a[1].copy()
     moments[..., :3] += b[1][..., :3]
     moments[..., 3] = np.minimum(a[1][..., 3], b[1][..., 3])
     moments[..., 4] = np.maximum(a[1][..., 4], b[1][..., 4])
-    return hist, moments
+    return hists, moments
 
 
 def _class_block(block: np.ndarray, variables: tuple[str, ...], class_codes: list[int]):
@@ -509,7 +511,7 @@ def run_scene(
                 )
             else:
                 chosen[role] = anchor_method.select_anchor(
-                    histogram[r],
+                    anchor_method.dense_histogram(histogram[r]),
                     role,
                     percentiles[role],
                     s.percentile_band,

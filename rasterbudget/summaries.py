@@ -13,17 +13,19 @@ import json
 
 import numpy as np
 
+from .histograms import RangeHistogram, range_histogram
+
 TILE_STATS = ("mean", "std", "min", "p10", "p50", "p90", "max")
 
 #: Histogram range and bin width per variable for per-class percentiles: (low, high, step).
 HISTOGRAM_RANGES: dict[str, tuple[float, float, float]] = {
-    "net_radiation": (-300.0, 1200.0, 0.1),
-    "ground_heat_flux": (-300.0, 700.0, 0.1),
-    "sensible_heat_flux": (-400.0, 1200.0, 0.1),
-    "latent_heat_flux": (0.0, 1200.0, 0.1),
-    "evaporative_fraction": (0.0, 1.0, 0.0001),
-    "et_hourly": (0.0, 2.0, 0.0002),
-    "et_daily": (0.0, 20.0, 0.002),
+    "net_radiation": (-300.0, 1200.0, 0.5),
+    "ground_heat_flux": (-300.0, 700.0, 0.5),
+    "sensible_heat_flux": (-400.0, 1200.0, 0.5),
+    "latent_heat_flux": (0.0, 1200.0, 0.5),
+    "evaporative_fraction": (0.0, 1.0, 0.001),
+    "et_hourly": (0.0, 2.0, 0.001),
+    "et_daily": (0.0, 20.0, 0.01),
 }
 
 
@@ -48,47 +50,48 @@ def tile_statistics(block: np.ndarray) -> np.ndarray:
     return out
 
 
-def _bin_layout() -> tuple[dict[str, tuple[int, int]], int]:
-    offsets, start = {}, 0
-    for name, (low, high, step) in HISTOGRAM_RANGES.items():
-        n = round((high - low) / step)
-        offsets[name] = (start, n)
-        start += n
-    return offsets, start
+def histogram_bins(name: str, values: np.ndarray) -> np.ndarray:
+    """Bin index of each value in the variable's histogram (clipped to its range)."""
+    low, high, step = HISTOGRAM_RANGES[name]
+    n = round((high - low) / step)
+    return np.clip(np.floor((values - low) / step), 0, n - 1).astype(np.intp)
 
 
-BIN_OFFSETS, TOTAL_BINS = _bin_layout()
+def n_bins(name: str) -> int:
+    low, high, step = HISTOGRAM_RANGES[name]
+    return round((high - low) / step)
+
+
 CLASS_MOMENTS = ("count", "sum", "sum_sq", "min", "max")
 
 
 def class_histograms(
     values: dict[str, np.ndarray], codes: np.ndarray, class_codes: list[int]
-) -> tuple[np.ndarray, np.ndarray]:
+) -> tuple[dict[tuple[int, int], RangeHistogram], np.ndarray]:
     """Per-class histograms and moments of one block.
 
-    Returns ``(hist, moments)``: ``hist`` int64 (n_classes, TOTAL_BINS); ``moments`` float64
-    (n_classes, n_variables, len(CLASS_MOMENTS)) with min/max as +inf/-inf where empty.
+    Returns ``(hists, moments)``: ``hists`` maps (class index, variable index) to a histogram of
+    the occupied bin range; ``moments`` float64 (n_classes, n_variables, len(CLASS_MOMENTS)) with
+    min/max as +inf/-inf where empty.
     """
     names = list(HISTOGRAM_RANGES)
-    hist = np.zeros((len(class_codes), TOTAL_BINS), dtype=np.int64)
+    hists: dict[tuple[int, int], RangeHistogram] = {}
     moments = np.zeros((len(class_codes), len(names), len(CLASS_MOMENTS)))
     moments[..., 3] = np.inf
     moments[..., 4] = -np.inf
+    present = set(np.unique(codes).tolist())
     for k, code in enumerate(class_codes):
-        in_class = codes == code
-        if not in_class.any():
+        if code not in present:
             continue
+        in_class = codes == code
         for v, name in enumerate(names):
             x = values[name][in_class]
             x = x[np.isfinite(x)].astype(np.float64)
             if not x.size:
                 continue
-            low, _, step = HISTOGRAM_RANGES[name]
-            start, n = BIN_OFFSETS[name]
-            bins = np.clip(np.floor((x - low) / step), 0, n - 1).astype(np.intp)
-            hist[k, start : start + n] += np.bincount(bins, minlength=n)
+            hists[k, v] = range_histogram(histogram_bins(name, x), [])
             moments[k, v] = (x.size, x.sum(), (x * x).sum(), x.min(), x.max())
-    return hist, moments
+    return hists, moments
 
 
 def histogram_percentile(counts: np.ndarray, low: float, step: float, q: float) -> float:
@@ -106,7 +109,11 @@ def histogram_percentile(counts: np.ndarray, low: float, step: float, q: float) 
 
 
 def class_rows(
-    hist: np.ndarray, moments: np.ndarray, class_table, class_codes: list[int], pixel_area: float
+    hists: dict[tuple[int, int], RangeHistogram],
+    moments: np.ndarray,
+    class_table,
+    class_codes: list[int],
+    pixel_area: float,
 ) -> list[dict]:
     """Rows of ``classes.csv``: statistics per class and the split of available energy."""
     names = list(HISTOGRAM_RANGES)
@@ -122,9 +129,8 @@ def class_rows(
         for v, name in enumerate(names):
             count, total, total_sq, vmin, vmax = moments[k, v]
             low, _, step = HISTOGRAM_RANGES[name]
-            start, n = BIN_OFFSETS[name]
-            counts = hist[k, start : start + n]
             if count:
+                counts = hists[k, v].dense(n_bins(name))[0]
                 mean = total / count
                 std = float(np.sqrt(max(total_sq / count - mean * mean, 0.0)))
                 stats = dict(

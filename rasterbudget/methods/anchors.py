@@ -20,6 +20,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from ..errors import AnchorError
+from ..histograms import RangeHistogram, merge_optional, range_histogram
 from ..physics import turbulence
 from ..physics.constants import SPECIFIC_HEAT_AIR
 
@@ -50,7 +51,9 @@ def temperature_bins(surface_temperature: np.ndarray) -> np.ndarray:
     return np.clip(np.nan_to_num(index, nan=0.0), 0, N_BINS - 1).astype(np.intp)
 
 
-def anchor_histograms_block(state: dict[str, np.ndarray], flat_index: np.ndarray) -> np.ndarray:
+def anchor_histograms_block(
+    state: dict[str, np.ndarray], flat_index: np.ndarray
+) -> tuple[RangeHistogram | None, RangeHistogram | None]:
     """Pass-1 reduction of one block.
 
     Parameters
@@ -60,11 +63,10 @@ def anchor_histograms_block(state: dict[str, np.ndarray], flat_index: np.ndarray
 
     Returns
     -------
-    Array of shape (2, len(HISTOGRAM_ROWS) + 1, N_BINS): per role (cold, hot) the per-bin sums,
-    and as last row the smallest global pixel index falling in each bin (inf where empty).
+    Per role (cold, hot) a histogram over the elevation-adjusted surface temperature whose rows
+    are ``HISTOGRAM_ROWS`` (count, then per-bin sums) and, last, the smallest global pixel index in
+    each bin; None where the block has no candidate of that role.
     """
-    out = np.zeros((len(ROLES), len(HISTOGRAM_ROWS) + 1, N_BINS))
-    out[:, -1, :] = np.inf
     # Anchors are ranked and calibrated on the elevation-adjusted surface temperature.
     ts = state["datum_surface_temperature"]
     weights = {
@@ -75,25 +77,34 @@ def anchor_histograms_block(state: dict[str, np.ndarray], flat_index: np.ndarray
         "net_radiation": state["net_radiation"],
         "ground_heat_flux": state["ground_heat_flux"],
     }
-    for r, role in enumerate(ROLES):
+    out = []
+    for role in ROLES:
         mask = state[f"{role}_candidate"]
         if not mask.any():
+            out.append(None)
             continue
-        bins = temperature_bins(ts[mask])
-        out[r, 0] = np.bincount(bins, minlength=N_BINS)
-        for k, name in enumerate(HISTOGRAM_ROWS[1:], start=1):
-            out[r, k] = np.bincount(bins, weights=weights[name][mask], minlength=N_BINS)
-        # Row-major order inside the block means the first occurrence has the smallest index.
-        first_bins, first_at = np.unique(bins, return_index=True)
-        out[r, -1, first_bins] = flat_index[mask][first_at]
-    return out
+        out.append(
+            range_histogram(
+                temperature_bins(ts[mask]),
+                [weights[name][mask] for name in HISTOGRAM_ROWS[1:]],
+                min_values=[flat_index[mask]],
+            )
+        )
+    return out[0], out[1]
 
 
-def combine_histograms(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Merge two pass-1 histograms: sums add, smallest pixel index wins."""
-    out = a + b
-    out[:, -1, :] = np.minimum(a[:, -1, :], b[:, -1, :])
-    return out
+def combine_histograms(a: tuple, b: tuple) -> tuple:
+    """Merge two pass-1 results role by role: sums add, smallest pixel index wins."""
+    return tuple(merge_optional(x, y) for x, y in zip(a, b, strict=True))
+
+
+def dense_histogram(histogram: RangeHistogram | None) -> np.ndarray:
+    """One role's pass-1 histogram as an array (len(HISTOGRAM_ROWS) + 1, N_BINS)."""
+    if histogram is None:
+        out = np.zeros((len(HISTOGRAM_ROWS) + 1, N_BINS))
+        out[-1] = np.inf
+        return out
+    return histogram.dense(N_BINS)
 
 
 @dataclass(frozen=True)

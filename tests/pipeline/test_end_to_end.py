@@ -142,8 +142,8 @@ def test_class_summaries_match_the_written_geotiffs(demo_run, scene):
         assert int(row["valid_pixels"]) == values.size
         assert float(row["latent_heat_flux_mean"]) == pytest.approx(values.mean(), rel=1e-6)
         assert float(row["latent_heat_flux_max"]) == pytest.approx(values.max(), rel=1e-6)
-        # percentiles from 0.1 W m-2 bins
-        assert float(row["latent_heat_flux_p50"]) == pytest.approx(np.median(values), abs=0.11)
+        # percentiles from 0.5 W m-2 bins
+        assert float(row["latent_heat_flux_p50"]) == pytest.approx(np.median(values), abs=0.51)
         hv = h[(codes == code) & np.isfinite(h)]
         share = values.sum() / (values.sum() + hv.sum())
         assert float(row["share_to_latent_heat"]) == pytest.approx(share, rel=1e-6)
