@@ -1,8 +1,10 @@
 """Open a scene's input rasters as one aligned, lazy, dask-backed set of arrays on one grid.
 
-The target grid is the albedo raster's. Inputs on another grid are warped to it on the fly, chunk
-by chunk, through GDAL warped virtual datasets (nearest for class codes, bilinear otherwise), so
-memory stays bounded by chunk size.
+The target grid is the albedo raster's. Every block task reads its own windows of every input
+(:func:`read_window`), warping inputs on another grid on the fly through GDAL warped virtual
+datasets (nearest for class codes, bilinear otherwise). Reads inside the block task, rather than as
+separate dask tasks, keep input blocks from being read far ahead of their use, so memory stays
+bounded by chunk size and each task opens its own handles (safe for threads and processes).
 """
 
 from __future__ import annotations
@@ -18,6 +20,7 @@ from rasterio.errors import RasterioIOError
 from rasterio.transform import Affine
 from rasterio.vrt import WarpedVRT
 from rasterio.warp import transform_bounds
+from rasterio.windows import Window
 
 from .errors import InputRasterError
 
@@ -119,33 +122,62 @@ def check_input(path: Path, role: str, grid: Grid) -> dict:
         }
 
 
-def open_input(path: Path, role: str, grid: Grid, chunk_size: int):
-    """One input as a lazy float32 dask array on the target grid (NaN = nodata).
+@dataclass(frozen=True)
+class InputSource:
+    """How to read one input onto the target grid, window by window (small and picklable)."""
 
-    Scale, offset and nodata come from the file's own metadata.
-    """
-    import rioxarray
+    role: str
+    path: str
+    grid: Grid
+    same_grid: bool
 
+    @property
+    def resampling(self) -> Resampling:
+        return Resampling.nearest if self.role in CATEGORICAL else Resampling.bilinear
+
+
+def input_source(path: Path, role: str, grid: Grid) -> InputSource:
     with rasterio.open(path) as src:
-        same = grid.same_as(src)
-    chunks = {"band": 1, "y": chunk_size, "x": chunk_size}
-    if same:
-        source = path
-    else:
-        resampling = Resampling.nearest if role in CATEGORICAL else Resampling.bilinear
-        src = rasterio.open(path)
-        source = WarpedVRT(
-            src,
-            crs=grid.crs,
-            transform=grid.transform,
-            width=grid.width,
-            height=grid.height,
-            resampling=resampling,
-        )
+        return InputSource(role=role, path=str(path), grid=grid, same_grid=grid.same_as(src))
+
+
+def _read(src, window: Window) -> np.ndarray:
+    band = src.read(1, window=window, masked=True, boundless=False)
+    data = band.astype(np.float64).filled(np.nan)
+    scale, offset = src.scales[0], src.offsets[0]
+    if scale != 1.0 or offset != 0.0:
+        data = data * scale + offset
+    return data
+
+
+def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) -> np.ndarray:
+    """Read a window of one input on the target grid as float64 (NaN = nodata).
+
+    Scale and offset come from the file's own metadata. Inputs on another grid are warped on the
+    fly through a GDAL warped virtual dataset (nearest for class codes, bilinear otherwise). With
+    ``halo`` > 0 the window grows by that many pixels on each side; beyond the grid's edge the
+    edge pixels are repeated, so the result does not depend on where the window lies.
+    """
+    g = source.grid
+    r0, r1 = max(rows.start - halo, 0), min(rows.stop + halo, g.height)
+    c0, c1 = max(cols.start - halo, 0), min(cols.stop + halo, g.width)
+    window = Window(c0, r0, c1 - c0, r1 - r0)
     try:
-        array = rioxarray.open_rasterio(
-            source, chunks=chunks, lock=False, masked=True, mask_and_scale=True
-        )
+        with rasterio.open(source.path) as src:
+            if source.same_grid:
+                data = _read(src, window)
+            else:
+                with WarpedVRT(src, crs=g.crs, transform=g.transform, width=g.width,
+                               height=g.height, resampling=source.resampling) as vrt:
+                    data = _read(vrt, window)
     except RasterioIOError as err:
-        raise InputRasterError(f"{role} raster {path} cannot be read: {err}.") from None
-    return array.isel(band=0).data.astype(np.float32)
+        raise InputRasterError(
+            f"{source.role} raster {source.path} could not be read at rows {r0}-{r1}, columns "
+            f"{c0}-{c1} ({str(err).splitlines()[0]}); the file may be truncated or corrupt: "
+            "copy or produce it again."
+        ) from None
+    if halo:
+        pad = ((r0 - (rows.start - halo), (rows.stop + halo) - r1),
+               (c0 - (cols.start - halo), (cols.stop + halo) - c1))
+        data = np.pad(data, pad, mode="edge")
+    return data

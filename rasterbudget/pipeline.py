@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import datetime as dt
 import hashlib
+import itertools
 import json
 import math
 import platform
@@ -23,7 +24,15 @@ import numpy as np
 
 from . import __version__
 from .errors import InputRasterError, OutputError, RasterBudgetError, SunBelowHorizonError
-from .grid import GDAL_OPTIONS, Grid, check_input, open_input, target_grid
+from .grid import (
+    GDAL_OPTIONS,
+    Grid,
+    InputSource,
+    check_input,
+    input_source,
+    read_window,
+    target_grid,
+)
 from .landcover import ClassTable
 from .methods import anchors as anchor_method
 from .outputs import (
@@ -232,16 +241,27 @@ def pixel_lonlat(grid: Grid, rows: slice, cols: slice) -> tuple[np.ndarray, np.n
 
 @dataclass(frozen=True)
 class BlockContext:
-    """Everything a block function needs besides its pixels (small, picklable)."""
+    """Everything a block function needs besides its location (small, picklable)."""
 
     grid: Grid
     constants: SceneConstants
     lookups: ClassLookups
-    names: tuple[str, ...]
+    sources: tuple[InputSource, ...]
 
 
-def _state(ctx: BlockContext, arrays, rows: slice, cols: slice) -> dict[str, np.ndarray]:
-    data = dict(zip(ctx.names, (np.asarray(a, dtype=np.float64) for a in arrays), strict=True))
+def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]:
+    """Read one window of every input and compute its surface state."""
+    data = {}
+    for source in ctx.sources:
+        if source.role == "elevation":
+            # one-pixel halo for the slope; edge pixels repeat beyond the grid
+            haloed = read_window(source, rows, cols, halo=1)
+            dx, dy = ctx.grid.pixel_size
+            slope, aspect = slope_aspect(haloed, dx, dy)
+            data["slope"], data["aspect"] = slope[1:-1, 1:-1], aspect[1:-1, 1:-1]
+            data["elevation"] = haloed[1:-1, 1:-1]
+        else:
+            data[source.role] = read_window(source, rows, cols)
     lon, lat = pixel_lonlat(ctx.grid, rows, cols)
     return surface_block(
         ctx.constants,
@@ -258,10 +278,10 @@ def _state(ctx: BlockContext, arrays, rows: slice, cols: slice) -> dict[str, np.
     )
 
 
-def pass1_block(ctx: BlockContext, location, *arrays) -> tuple:
-    """Pass 1 for one block: surface state, then the anchor histograms."""
+def pass1_block(ctx: BlockContext, location) -> tuple:
+    """Pass 1 for one block: read, surface state, then the anchor histograms."""
     (r0, r1), (c0, c1) = location
-    state = _state(ctx, arrays, slice(r0, r1), slice(c0, c1))
+    state = _state(ctx, slice(r0, r1), slice(c0, c1))
     rows, cols = np.mgrid[r0:r1, c0:c1]
     flat = rows.astype(np.float64) * ctx.grid.width + cols
     return anchor_method.anchor_histograms_block(state, flat)
@@ -279,10 +299,10 @@ class Pass2Parameters:
     variables: tuple[str, ...]
 
 
-def pass2_block(ctx: BlockContext, p: Pass2Parameters, *arrays, block_info=None) -> np.ndarray:
-    """Pass 2 for one block: all fluxes and QA, stacked along a leading variable axis."""
-    (r0, r1), (c0, c1) = block_info[None]["array-location"][-2:]
-    state = _state(ctx, arrays, slice(r0, r1), slice(c0, c1))
+def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
+    """Pass 2 for one block: read, all fluxes and QA, stacked along a leading variable axis."""
+    (r0, r1), (c0, c1) = location
+    state = _state(ctx, slice(r0, r1), slice(c0, c1))
     qa = state["qa"]
     valid = state["valid"]
     ts = state["surface_temperature"]
@@ -450,37 +470,25 @@ def run_scene(
     env.__enter__()
     writers: list[AtomicRaster] = []
     try:
-        arrays = {role: open_input(path, role, grid, chunk) for role, path in paths.items()}
-        if "elevation" in arrays:
-            dx, dy = grid.pixel_size
-            elev = arrays["elevation"]
-            for k, name in enumerate(("slope", "aspect")):
-                arrays[name] = elev.map_overlap(
-                    lambda z, k=k: slope_aspect(z.astype(np.float64), dx, dy)[k].astype(np.float32),
-                    depth=1,
-                    boundary="nearest",
-                    dtype=np.float32,
-                )
-        names = tuple(arrays)
-        ctx = BlockContext(grid=grid, constants=constants, lookups=lookups, names=names)
-        stack = list(arrays.values())
+        sources = tuple(input_source(path, role, grid) for role, path in paths.items())
+        ctx = BlockContext(grid=grid, constants=constants, lookups=lookups, sources=sources)
+        ctx_task = dask.delayed(ctx)  # one graph key shared by every block task
+        row_edges = [*range(0, grid.height, chunk), grid.height]
+        col_edges = [*range(0, grid.width, chunk), grid.width]
+        locations = [
+            [((r0, r1), (c0, c1)) for c0, c1 in itertools.pairwise(col_edges)]
+            for r0, r1 in itertools.pairwise(row_edges)
+        ]
 
-        # ---------------- pass 1: anchor histograms (+ windows around user-given anchors)
+        # ---------------- pass 1: anchor histograms. Each task reads its own windows, so input
+        # blocks are never read far ahead of their use.
         t0 = time.perf_counter()
-        delayed_blocks = [a.to_delayed() for a in stack]
-        chunks_y, chunks_x = stack[0].chunks
-        y_edges = np.concatenate([[0], np.cumsum(chunks_y)])
-        x_edges = np.concatenate([[0], np.cumsum(chunks_x)])
-        partials = []
-        for i in range(len(chunks_y)):
-            for j in range(len(chunks_x)):
-                location = ((y_edges[i], y_edges[i + 1]), (x_edges[j], x_edges[j + 1]))
-                partials.append(
-                    dask.delayed(pass1_block)(ctx, location, *[d[i, j] for d in delayed_blocks])
-                )
+        partials = [dask.delayed(pass1_block)(ctx_task, loc) for row in locations for loc in row]
         histogram = _tree_reduce(partials, anchor_method.combine_histograms)
-        windows = {}
+        with TaskProgress(f"{scene.id} pass 1", settings.progress):
+            (histogram,) = dask.compute(histogram)
         s = scene.anchors
+        given = {}
         for role, xy in (("cold", s.cold_xy), ("hot", s.hot_xy)):
             if xy is None:
                 continue
@@ -491,24 +499,15 @@ def run_scene(
                     f"grid {tuple(round(b) for b in grid.bounds)}; give map coordinates in "
                     f"{grid.crs.to_string()}."
                 )
-            r0, c0 = max(row - 1, 0), max(col - 1, 0)
-            r1, c1 = min(row + 2, grid.height), min(col + 2, grid.width)
-            windows[role] = (row, col, r0, c0, [a[r0:r1, c0:c1] for a in stack], (r1, c1))
-        with TaskProgress(f"{scene.id} pass 1", settings.progress):
-            histogram, window_values = dask.compute(
-                histogram, {k: v[4] for k, v in windows.items()}
-            )
+            state = _state(ctx, slice(row, row + 1), slice(col, col + 1))
+            given[role] = anchor_method.anchor_from_pixel(state, role, row, col, (0, 0))
         timings["pass1_s"] = time.perf_counter() - t0
 
         chosen = {}
         percentiles = {"cold": s.cold_percentile, "hot": s.hot_percentile}
         for r, role in enumerate(anchor_method.ROLES):
-            if role in windows:
-                row, col, r0, c0, _, (r1, c1) = windows[role]
-                state = _state(ctx, window_values[role], slice(r0, r1), slice(c0, c1))
-                chosen[role] = anchor_method.anchor_from_pixel(
-                    state, role, row, col, (row - r0, col - c0)
-                )
+            if role in given:
+                chosen[role] = given[role]
             else:
                 chosen[role] = anchor_method.select_anchor(
                     anchor_method.dense_histogram(histogram[r]),
@@ -549,22 +548,25 @@ def run_scene(
             calibration=calibration,
             cold=chosen["cold"],
             hot=chosen["hot"],
-            explicit_cold="cold" in windows,
-            explicit_hot="hot" in windows,
+            explicit_cold="cold" in given,
+            explicit_hot="hot" in given,
             blending_height=s.blending_height_m,
             max_iterations=s.max_iterations,
             variables=variables,
         )
-        stacked = da.map_blocks(
-            pass2_block,
-            ctx,
-            params,
-            *stack,
-            new_axis=0,
-            chunks=((len(variables),), *stack[0].chunks),
-            dtype=np.float32,
-            meta=np.empty((0, 0, 0), np.float32),
-        )
+        params_task = dask.delayed(params)
+        stacked = da.block([
+            [
+                da.from_delayed(
+                    dask.delayed(pass2_block)(ctx_task, params_task, loc),
+                    shape=(len(variables), loc[0][1] - loc[0][0], loc[1][1] - loc[1][0]),
+                    dtype=np.float32,
+                    meta=np.empty((0, 0, 0), np.float32),
+                )
+                for loc in row
+            ]
+            for row in locations
+        ])
         descriptions = {**FLUX_OUTPUTS, **COMPONENT_OUTPUTS}
         tags = {
             "scene_id": scene.id,

@@ -151,11 +151,11 @@ def test_crash_while_writing_leaves_no_final_outputs(tmp_path, monkeypatch):
     original = pipeline.pass2_block
     calls = {"n": 0}
 
-    def failing(*args, block_info=None):
+    def failing(*args):
         calls["n"] += 1
         if calls["n"] == 3:
             raise OSError("disk full (simulated)")
-        return original(*args, block_info=block_info)
+        return original(*args)
 
     monkeypatch.setattr(pipeline, "pass2_block", failing)
     data = demo_recipe_dict()
