@@ -167,8 +167,14 @@ def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) ->
             if source.same_grid:
                 data = _read(src, window)
             else:
-                with WarpedVRT(src, crs=g.crs, transform=g.transform, width=g.width,
-                               height=g.height, resampling=source.resampling) as vrt:
+                with WarpedVRT(
+                    src,
+                    crs=g.crs,
+                    transform=g.transform,
+                    width=g.width,
+                    height=g.height,
+                    resampling=source.resampling,
+                ) as vrt:
                     data = _read(vrt, window)
     except RasterioIOError as err:
         raise InputRasterError(
@@ -177,7 +183,9 @@ def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) ->
             "copy or produce it again."
         ) from None
     if halo:
-        pad = ((r0 - (rows.start - halo), (rows.stop + halo) - r1),
-               (c0 - (cols.start - halo), (cols.stop + halo) - c1))
+        pad = (
+            (r0 - (rows.start - halo), (rows.stop + halo) - r1),
+            (c0 - (cols.start - halo), (cols.stop + halo) - c1),
+        )
         data = np.pad(data, pad, mode="edge")
     return data

@@ -416,16 +416,12 @@ def versions() -> dict[str, str]:
     import dask
     import pyproj
     import rasterio
-    import rioxarray
-    import xarray
 
     return {
         "rasterbudget": __version__,
         "python": platform.python_version(),
         "numpy": np.__version__,
         "dask": dask.__version__,
-        "xarray": xarray.__version__,
-        "rioxarray": rioxarray.__version__,
         "rasterio": rasterio.__version__,
         "gdal": rasterio.__gdal_version__,
         "pyproj": pyproj.__version__,
@@ -555,18 +551,20 @@ def run_scene(
             variables=variables,
         )
         params_task = dask.delayed(params)
-        stacked = da.block([
+        stacked = da.block(
             [
-                da.from_delayed(
-                    dask.delayed(pass2_block)(ctx_task, params_task, loc),
-                    shape=(len(variables), loc[0][1] - loc[0][0], loc[1][1] - loc[1][0]),
-                    dtype=np.float32,
-                    meta=np.empty((0, 0, 0), np.float32),
-                )
-                for loc in row
+                [
+                    da.from_delayed(
+                        dask.delayed(pass2_block)(ctx_task, params_task, loc),
+                        shape=(len(variables), loc[0][1] - loc[0][0], loc[1][1] - loc[1][0]),
+                        dtype=np.float32,
+                        meta=np.empty((0, 0, 0), np.float32),
+                    )
+                    for loc in row
+                ]
+                for row in locations
             ]
-            for row in locations
-        ])
+        )
         descriptions = {**FLUX_OUTPUTS, **COMPONENT_OUTPUTS}
         tags = {
             "scene_id": scene.id,
@@ -603,12 +601,12 @@ def run_scene(
         tile = settings.tile_size
         flux_names = list(FLUX_OUTPUTS)
         tiled = stacked[: len(flux_names)].rechunk((len(flux_names), tile, tile))
-        tile_delayed = tiled.to_delayed()[0]
+        tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
         tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
         class_codes = table.codes
         class_parts = [
             dask.delayed(_class_block)(b, variables, class_codes)
-            for b in stacked.to_delayed().ravel()
+            for b in stacked.to_delayed(optimize_graph=False).ravel()
         ]
         class_total = _tree_reduce(class_parts, _combine_class)
         with TaskProgress(f"{scene.id} pass 2", settings.progress):
