@@ -90,7 +90,7 @@ def test_too_few_candidates_is_a_clear_error():
 
 @pytest.mark.parametrize("wind", [1.5, 4.0, 8.0])
 def test_calibration_reproduces_the_anchor_conditions(wind):
-    """H at each anchor, recomputed per pixel, equals (1 - EF)(Rn - G) (Bastiaanssen et al. 1998)."""
+    """H at each anchor, recomputed per pixel, is (1 - EF)(Rn - G) (Bastiaanssen et al. 1998)."""
     cold = _anchor("cold", 296.0, 600.0, 0.1)
     hot = _anchor("hot", 325.0, 350.0, 0.005)
     u_blend = anchors.wind_at_blending_height(wind, 2.0, 0.0148, 200.0)
