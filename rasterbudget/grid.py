@@ -42,7 +42,8 @@ class Grid:
 
     @property
     def bounds(self) -> tuple[float, float, float, float]:
-        return rasterio.transform.array_bounds(self.height, self.width, self.transform)[::1]
+        """(left, bottom, right, top) in the grid's CRS."""
+        return rasterio.transform.array_bounds(self.height, self.width, self.transform)
 
     @property
     def pixel_size(self) -> tuple[float, float]:

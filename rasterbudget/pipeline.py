@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .errors import InputRasterError, OutputError, RasterBudgetError, SunBelowHorizonError
+from .errors import OutputError, RasterBudgetError, SunBelowHorizonError
 from .grid import (
     GDAL_OPTIONS,
     Grid,
@@ -618,19 +618,13 @@ def run_scene(
         timings["pass2_s"] = time.perf_counter() - t0
     except RasterBudgetError:
         raise
-    except (OSError, RuntimeError) as err:
-        # Errors raised while reading blocks (truncated or corrupt files) surface here.
+    except OSError as err:
+        # Input windows raise InputRasterError themselves; what is left is writing outputs.
         message = str(err).splitlines()[0] if str(err) else type(err).__name__
-        if (
-            "rasterio" in type(err).__module__
-            or "CPLE" in type(err).__name__
-            or isinstance(err, OSError)
-        ):
-            raise InputRasterError(
-                f"scene {scene.id}: reading or writing rasters failed ({message}); check that "
-                f"the input files are complete GeoTIFFs ({', '.join(map(str, paths.values()))})."
-            ) from err
-        raise
+        raise OutputError(
+            f"scene {scene.id}: writing outputs to {out_dir} failed ({message}); check free disk "
+            "space and write permission, then run again (nothing incomplete was kept)."
+        ) from err
     finally:
         for w in writers:
             w.abort()
@@ -761,14 +755,3 @@ def _json_default(value):
     if isinstance(value, dt.datetime):
         return value.isoformat()
     raise TypeError(f"cannot serialise {type(value).__name__}")
-
-
-def run_recipe(recipe: Recipe, table: ClassTable, settings: RunSettings) -> list[SceneResult]:
-    """Run every scene of a recipe in order (a failure stops the run with a clear error)."""
-    results = []
-    for scene in recipe.scene:
-        try:
-            results.append(run_scene(recipe, scene, table, settings))
-        except OutputError:
-            raise
-    return results

@@ -9,7 +9,7 @@ from click.testing import CliRunner
 
 from rasterbudget import pipeline
 from rasterbudget.cli import main
-from rasterbudget.errors import InputRasterError
+from rasterbudget.errors import OutputError
 from rasterbudget.landcover import load_class_table
 from rasterbudget.recipe import parse_recipe
 
@@ -161,7 +161,7 @@ def test_crash_while_writing_leaves_no_final_outputs(tmp_path, monkeypatch):
     data = demo_recipe_dict()
     recipe = parse_recipe(data)
     settings = pipeline.RunSettings(out_dir=tmp_path / "out", chunk_size=64, tile_size=64)
-    with pytest.raises(InputRasterError, match="disk full"):
+    with pytest.raises(OutputError, match="disk full"):
         pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)
     assert calls["n"] >= 3
     left = sorted(p.name for p in (tmp_path / "out" / SCENE).iterdir())
