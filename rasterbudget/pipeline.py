@@ -186,6 +186,7 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
         min_ndvi_cold=scene.anchors.cold_min_ndvi,
         max_ndvi_hot=scene.anchors.hot_max_ndvi,
         surface_lapse_rate=scene.anchors.surface_lapse_rate_k_per_km / 1000.0,
+        anchor_elevation_range=scene.anchors.max_elevation_difference_m,
     )
     facts = {"centre_lon": lon, "centre_lat": lat, "sun_elevation_deg_centre": elevation_deg}
     return constants, facts

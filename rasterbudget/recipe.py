@@ -102,6 +102,7 @@ class AnchorSettings(_Strict):
     cold_xy: tuple[float, float] | None = None
     hot_xy: tuple[float, float] | None = None
     surface_lapse_rate_k_per_km: float = Field(6.5, ge=0.0, le=15.0)
+    max_elevation_difference_m: float = Field(500.0, gt=0.0)
     blending_height_m: float = Field(200.0, ge=20.0, le=1000.0)
     station_roughness_m: float = Field(0.0148, gt=0.0, le=2.0)
     max_iterations: int = Field(30, ge=1, le=200)

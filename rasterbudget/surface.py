@@ -55,6 +55,7 @@ class SceneConstants:
     min_ndvi_cold: float
     max_ndvi_hot: float
     surface_lapse_rate: float = 0.0  # [K m-1] for the elevation-adjusted Ts of the dT relation
+    anchor_elevation_range: float = np.inf  # anchors within this height of the station [m]
 
 
 @dataclass(frozen=True)
@@ -212,8 +213,11 @@ def surface_block(
     with np.errstate(invalid="ignore"):
         ndvi_ok_cold = True if ndvi is None else ndvi >= c.min_ndvi_cold
         ndvi_ok_hot = True if ndvi is None else ndvi <= c.max_ndvi_hot
-    cold = clean & lookups.cold_anchor[codes] & ndvi_ok_cold
-    hot = clean & lookups.hot_anchor[codes] & ndvi_ok_hot
+    # Anchors stand for the weather station's conditions: keep them near its elevation.
+    with np.errstate(invalid="ignore"):
+        near_station = np.abs(z - c.station_elevation) <= c.anchor_elevation_range
+    cold = clean & near_station & lookups.cold_anchor[codes] & ndvi_ok_cold
+    hot = clean & near_station & lookups.hot_anchor[codes] & ndvi_ok_hot
 
     # Surface temperature carried to the station elevation for the dT = a + b Ts relation, so that
     # cool high ground is not mistaken for wet ground (common practice with a DEM).

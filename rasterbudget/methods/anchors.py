@@ -154,7 +154,8 @@ def select_anchor(
                 if role == "cold"
                 else " with NDVI <= anchors.hot_max_ndvi"
             )
-            + ", free of QA problems: lower the NDVI threshold, check the land cover, "
+            + ", free of QA problems and within anchors.max_elevation_difference_m of the "
+            "station: lower the NDVI threshold, check the land cover, "
             f"or give anchors.{role}_xy."
         )
     upper = np.cumsum(counts)

@@ -176,3 +176,11 @@ def test_rerun_replaces_previous_outputs_atomically(tmp_path):
     names = sorted(p.name for p in (tmp_path / "out" / SCENE).iterdir())
     assert not [n for n in names if n.endswith(".partial")]
     assert np.isfinite(rasterio.open(tmp_path / "out" / SCENE / "et_daily.tif").read(1)).any()
+
+
+def test_anchor_elevation_limit_is_named_when_it_leaves_no_candidates(tmp_path):
+    recipe = _one_scene(
+        tmp_path,
+        lambda d: d["scene"][0].setdefault("anchors", {}).update(max_elevation_difference_m=0.5),
+    )
+    _run_fails(tmp_path, recipe, "candidate", "max_elevation_difference_m")
