@@ -109,11 +109,22 @@ def run(
             started = time.perf_counter()
             result = run_scene(parsed, scene, table, settings)
             if not quiet:
-                cal = result.manifest["anchors"]
+                m = result.manifest
+                if m["sensible_heat_method"] == "edges":
+                    e = m["edges"]
+                    how = (
+                        f"dry edge {e['dry_intercept']:.1f} {e['dry_slope']:+.1f} albedo K, "
+                        f"wet edge {e['wet_intercept']:.1f} {e['wet_slope']:+.1f} albedo K"
+                    )
+                else:
+                    a = m["anchors"]
+                    how = (
+                        f"cold anchor {a['cold']['surface_temperature']:.2f} K, "
+                        f"hot anchor {a['hot']['surface_temperature']:.2f} K"
+                    )
                 click.echo(
                     f"{scene.id}: done in {time.perf_counter() - started:.1f} s -> "
-                    f"{result.out_dir}  (cold anchor {cal['cold']['surface_temperature']:.2f} K, "
-                    f"hot anchor {cal['hot']['surface_temperature']:.2f} K)"
+                    f"{result.out_dir}  ({how})"
                 )
     except RasterBudgetError as err:
         _fail(err, debug)

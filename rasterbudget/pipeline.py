@@ -35,6 +35,7 @@ from .grid import (
 )
 from .landcover import ClassTable
 from .methods import anchors as anchor_method
+from .methods import edges as edge_method
 from .outputs import (
     COMPONENT_OUTPUTS,
     FLUX_OUTPUTS,
@@ -248,6 +249,7 @@ class BlockContext:
     constants: SceneConstants
     lookups: ClassLookups
     sources: tuple[InputSource, ...]
+    method: str = "anchors"
 
 
 def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]:
@@ -279,10 +281,12 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
     )
 
 
-def pass1_block(ctx: BlockContext, location) -> tuple:
-    """Pass 1 for one block: read, surface state, then the anchor histograms."""
+def pass1_block(ctx: BlockContext, location):
+    """Pass 1 for one block: read, surface state, then the method's histograms."""
     (r0, r1), (c0, c1) = location
     state = _state(ctx, slice(r0, r1), slice(c0, c1))
+    if ctx.method == "edges":
+        return edge_method.scatter_histogram_block(state)
     rows, cols = np.mgrid[r0:r1, c0:c1]
     flat = rows.astype(np.float64) * ctx.grid.width + cols
     return anchor_method.anchor_histograms_block(state, flat)
@@ -290,14 +294,17 @@ def pass1_block(ctx: BlockContext, location) -> tuple:
 
 @dataclass(frozen=True)
 class Pass2Parameters:
-    calibration: anchor_method.Calibration
-    cold: anchor_method.Anchor
-    hot: anchor_method.Anchor
-    explicit_cold: bool
-    explicit_hot: bool
-    blending_height: float
-    max_iterations: int
+    """What pass 2 needs from pass 1: the anchor calibration or the fitted edges."""
+
     variables: tuple[str, ...]
+    calibration: anchor_method.Calibration | None = None
+    cold: anchor_method.Anchor | None = None
+    hot: anchor_method.Anchor | None = None
+    explicit_cold: bool = False
+    explicit_hot: bool = False
+    blending_height: float = 200.0
+    max_iterations: int = 30
+    edges: edge_method.Edges | None = None
 
 
 def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
@@ -309,15 +316,23 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
     ts = state["surface_temperature"]
     rn, g, available = state["net_radiation"], state["ground_heat_flux"], state["available_energy"]
 
-    h, converged = anchor_method.sensible_heat_block(
-        np.where(valid, ts, np.nan),
-        state["roughness_length"],
-        state["air_density"],
-        p.calibration,
-        p.blending_height,
-        p.max_iterations,
-        datum_surface_temperature=state["datum_surface_temperature"],
-    )
+    if p.edges is not None:
+        # H is what the edges leave of the available energy: (1 - EF) (Rn - G), unclipped here
+        ef_edges = edge_method.evaporative_fraction_block(
+            state["albedo"], state["datum_surface_temperature"], p.edges
+        )
+        h = np.where(valid, (1.0 - ef_edges) * available, np.nan)
+        converged = np.ones(ts.shape, dtype=bool)
+    else:
+        h, converged = anchor_method.sensible_heat_block(
+            np.where(valid, ts, np.nan),
+            state["roughness_length"],
+            state["air_density"],
+            p.calibration,
+            p.blending_height,
+            p.max_iterations,
+            datum_surface_temperature=state["datum_surface_temperature"],
+        )
     le_raw = partition.latent_heat_residual(rn, g, h)
     le = partition.clip_latent_heat(le_raw, available)
     with np.errstate(invalid="ignore"):
@@ -341,10 +356,15 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
     qa = qa | bit(clipped_low, QA.LATENT_HEAT_CLIPPED_AT_ZERO)
     qa |= bit(clipped_high, QA.LATENT_HEAT_CLIPPED_AT_AVAILABLE)
     qa |= bit(valid & ~converged, QA.STABILITY_NOT_CONVERGED)
-    for anchor, explicit, flag, candidates in (
-        (p.cold, p.explicit_cold, QA.COLD_ANCHOR, state["cold_candidate"]),
-        (p.hot, p.explicit_hot, QA.HOT_ANCHOR, state["hot_candidate"]),
-    ):
+    anchor_bits = (
+        ()
+        if p.calibration is None
+        else (
+            (p.cold, p.explicit_cold, QA.COLD_ANCHOR, state["cold_candidate"]),
+            (p.hot, p.explicit_hot, QA.HOT_ANCHOR, state["hot_candidate"]),
+        )
+    )
+    for anchor, explicit, flag, candidates in anchor_bits:
         if explicit:
             if r0 <= anchor.row < r1 and c0 <= anchor.col < c1:
                 qa[anchor.row - r0, anchor.col - c0] |= np.uint16(flag)
@@ -433,6 +453,72 @@ def versions() -> dict[str, str]:
 # ----------------------------------------------------------------------------- the scene
 
 
+def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -> tuple:
+    """Choose (or read) both anchors and fit dT = a + b Ts; return pass-2 parameters and facts."""
+    import rasterio
+
+    s = scene.anchors
+    if scene.overpass.wind_speed_m_s is None:
+        raise RasterBudgetError(
+            f"scene {scene.id}: anchor calibration needs overpass.wind_speed_m_s; add it, or "
+            "set sensible_heat = 'edges', which needs no wind."
+        )
+    chosen = {}
+    explicit = {}
+    percentiles = {"cold": s.cold_percentile, "hot": s.hot_percentile}
+    for r, (role, xy) in enumerate((("cold", s.cold_xy), ("hot", s.hot_xy))):
+        explicit[role] = xy is not None
+        if xy is None:
+            chosen[role] = anchor_method.select_anchor(
+                anchor_method.dense_histogram(histogram[r]),
+                role,
+                percentiles[role],
+                s.percentile_band,
+                s.min_candidates,
+                grid.width,
+            )
+            continue
+        row, col = rasterio.transform.rowcol(grid.transform, *xy)
+        if not (0 <= row < grid.height and 0 <= col < grid.width):
+            raise RasterBudgetError(
+                f"scene {scene.id}: anchors.{role}_xy = {list(xy)} lies outside the scene "
+                f"grid {tuple(round(b) for b in grid.bounds)}; give map coordinates in "
+                f"{grid.crs.to_string()}."
+            )
+        state = _state(ctx, slice(row, row + 1), slice(col, col + 1))
+        chosen[role] = anchor_method.anchor_from_pixel(state, role, row, col, (0, 0))
+    u_blend = anchor_method.wind_at_blending_height(
+        scene.overpass.wind_speed_m_s,
+        scene.overpass.wind_height_m,
+        s.station_roughness_m,
+        s.blending_height_m,
+    )
+    calibration = anchor_method.calibrate(
+        chosen["cold"],
+        chosen["hot"],
+        u_blend,
+        s.blending_height_m,
+        s.cold_evaporative_fraction,
+        s.hot_evaporative_fraction,
+        s.max_iterations,
+        s.tolerance_k,
+    )
+    params = {
+        "calibration": calibration,
+        "cold": chosen["cold"],
+        "hot": chosen["hot"],
+        "explicit_cold": explicit["cold"],
+        "explicit_hot": explicit["hot"],
+        "blending_height": s.blending_height_m,
+        "max_iterations": s.max_iterations,
+    }
+    facts = {
+        "anchors": {k: v.as_dict() | _anchor_xy(grid, v) for k, v in chosen.items()},
+        "calibration": calibration.as_dict(),
+    }
+    return params, facts
+
+
 def run_scene(
     recipe: Recipe, scene: Scene, table: ClassTable, settings: RunSettings
 ) -> SceneResult:
@@ -468,7 +554,13 @@ def run_scene(
     writers: list[AtomicRaster] = []
     try:
         sources = tuple(input_source(path, role, grid) for role, path in paths.items())
-        ctx = BlockContext(grid=grid, constants=constants, lookups=lookups, sources=sources)
+        ctx = BlockContext(
+            grid=grid,
+            constants=constants,
+            lookups=lookups,
+            sources=sources,
+            method=scene.sensible_heat,
+        )
         ctx_task = dask.delayed(ctx)  # one graph key shared by every block task
         row_edges = [*range(0, grid.height, chunk), grid.height]
         col_edges = [*range(0, grid.width, chunk), grid.width]
@@ -481,59 +573,29 @@ def run_scene(
         # blocks are never read far ahead of their use.
         t0 = time.perf_counter()
         partials = [dask.delayed(pass1_block)(ctx_task, loc) for row in locations for loc in row]
-        histogram = _tree_reduce(partials, anchor_method.combine_histograms)
+        combine = (
+            edge_method.combine_histograms
+            if scene.sensible_heat == "edges"
+            else anchor_method.combine_histograms
+        )
+        histogram = _tree_reduce(partials, combine)
         with TaskProgress(f"{scene.id} pass 1", settings.progress):
             (histogram,) = dask.compute(histogram)
-        s = scene.anchors
-        given = {}
-        for role, xy in (("cold", s.cold_xy), ("hot", s.hot_xy)):
-            if xy is None:
-                continue
-            row, col = rasterio.transform.rowcol(grid.transform, *xy)
-            if not (0 <= row < grid.height and 0 <= col < grid.width):
-                raise RasterBudgetError(
-                    f"scene {scene.id}: anchors.{role}_xy = {list(xy)} lies outside the scene "
-                    f"grid {tuple(round(b) for b in grid.bounds)}; give map coordinates in "
-                    f"{grid.crs.to_string()}."
-                )
-            state = _state(ctx, slice(row, row + 1), slice(col, col + 1))
-            given[role] = anchor_method.anchor_from_pixel(state, role, row, col, (0, 0))
-        timings["pass1_s"] = time.perf_counter() - t0
-
-        chosen = {}
-        percentiles = {"cold": s.cold_percentile, "hot": s.hot_percentile}
-        for r, role in enumerate(anchor_method.ROLES):
-            if role in given:
-                chosen[role] = given[role]
-            else:
-                chosen[role] = anchor_method.select_anchor(
-                    anchor_method.dense_histogram(histogram[r]),
-                    role,
-                    percentiles[role],
-                    s.percentile_band,
-                    s.min_candidates,
-                    grid.width,
-                )
-        if scene.overpass.wind_speed_m_s is None:
-            raise RasterBudgetError(
-                f"scene {scene.id}: anchor calibration needs overpass.wind_speed_m_s; add it."
+        if scene.sensible_heat == "edges":
+            e = scene.edges
+            fitted = edge_method.fit_edges(
+                histogram,
+                e.dry_percentile,
+                e.wet_percentile,
+                e.min_pixels_per_bin,
+                e.min_bins,
+                e.wet_edge,
             )
-        u_blend = anchor_method.wind_at_blending_height(
-            scene.overpass.wind_speed_m_s,
-            scene.overpass.wind_height_m,
-            s.station_roughness_m,
-            s.blending_height_m,
-        )
-        calibration = anchor_method.calibrate(
-            chosen["cold"],
-            chosen["hot"],
-            u_blend,
-            s.blending_height_m,
-            s.cold_evaporative_fraction,
-            s.hot_evaporative_fraction,
-            s.max_iterations,
-            s.tolerance_k,
-        )
+            method_params = {"edges": fitted}
+            method_facts = {"edges": fitted.as_dict()}
+        else:
+            method_params, method_facts = _calibrate_anchors(scene, grid, ctx, histogram)
+        timings["pass1_s"] = time.perf_counter() - t0
 
         # ---------------- pass 2: fluxes, GeoTIFFs and summaries in one compute
         t0 = time.perf_counter()
@@ -541,16 +603,7 @@ def run_scene(
             list(COMPONENT_OUTPUTS) if settings.write_components else []
         )
         variables = (*written, QA_OUTPUT, "land_cover_code")
-        params = Pass2Parameters(
-            calibration=calibration,
-            cold=chosen["cold"],
-            hot=chosen["hot"],
-            explicit_cold="cold" in given,
-            explicit_hot="hot" in given,
-            blending_height=s.blending_height_m,
-            max_iterations=s.max_iterations,
-            variables=variables,
-        )
+        params = Pass2Parameters(variables=variables, **method_params)
         params_task = dask.delayed(params)
         stacked = da.block(
             [
@@ -674,6 +727,15 @@ def run_scene(
             out_dir / "quicklook.png",
             f"{scene.id}  {scene.acquired_utc:%Y-%m-%d %H:%M} UTC",
         )
+    if scene.sensible_heat == "edges":
+        picture = out_dir / "edges.png"
+        edge_method.scatter_picture(
+            histogram,
+            method_params["edges"],
+            picture.with_name(picture.name + ".partial"),
+            f"{scene.id}: surface temperature against albedo",
+        )
+        outputs["edges.png"] = picture.with_name(picture.name + ".partial").replace(picture)
     timings["summaries_s"] = time.perf_counter() - t0
     timings["total_s"] = time.perf_counter() - started
 
@@ -702,9 +764,8 @@ def run_scene(
         "parameters": json.loads(scene.model_dump_json()),
         "scene_constants": asdict(constants),
         "scene_facts": facts,
-        "sensible_heat_method": "anchors",
-        "anchors": {k: v.as_dict() | _anchor_xy(grid, v) for k, v in chosen.items()},
-        "calibration": calibration.as_dict(),
+        "sensible_heat_method": scene.sensible_heat,
+        **method_facts,
         "qa_bits": {
             f"bit {int(math.log2(b))}": {
                 "name": b.name,

@@ -110,6 +110,16 @@ class AnchorSettings(_Strict):
     min_candidates: int = Field(20, ge=1)
 
 
+class EdgeSettings(_Strict):
+    """``[scene.edges]``: dry and wet edges of the surface temperature-albedo scatter."""
+
+    dry_percentile: float = Field(99.0, gt=50.0, lt=100.0)
+    wet_percentile: float = Field(1.0, gt=0.0, lt=50.0)
+    min_pixels_per_bin: int = Field(50, ge=5)
+    min_bins: int = Field(4, ge=3)
+    wet_edge: Literal["flat", "fitted"] = "flat"
+
+
 class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
@@ -118,8 +128,10 @@ class Scene(_Strict):
     inputs: SceneInputs
     overpass: OverpassWeather
     daily: DailyWeather
+    sensible_heat: Literal["anchors", "edges"] = "anchors"
     radiation: RadiationOptions = RadiationOptions()
     anchors: AnchorSettings = AnchorSettings()
+    edges: EdgeSettings = EdgeSettings()
 
     @field_validator("acquired_utc")
     @classmethod

@@ -225,6 +225,8 @@ def surface_block(
 
     nan = np.float64(np.nan)
     return {
+        "albedo": albedo,
+        "edge_candidate": clean & near_station,
         "qa": qa,
         "valid": valid,
         "codes": codes,
