@@ -20,13 +20,16 @@ FLUX_OUTPUTS: dict[str, tuple[str, str]] = {
     "latent_heat_flux": ("W m-2", "latent heat flux LE = Rn - G - H at overpass"),
     "evaporative_fraction": ("1", "evaporative fraction LE / (Rn - G)"),
     "et_hourly": ("mm h-1", "actual evapotranspiration rate at overpass"),
-    "et_daily": ("mm d-1", "daily actual evapotranspiration, EF x daily Rn / lambda"),
+    "et_daily": ("mm d-1", "daily actual evapotranspiration (scaling in the manifest)"),
 }
 COMPONENT_OUTPUTS: dict[str, tuple[str, str]] = {
     "shortwave_in": ("W m-2", "incoming shortwave radiation at overpass"),
     "longwave_in": ("W m-2", "incoming longwave radiation at overpass"),
     "longwave_out": ("W m-2", "outgoing longwave radiation at overpass"),
     "net_radiation_daily": ("MJ m-2 d-1", "FAO-56 daily net radiation"),
+}
+REFERENCE_OUTPUTS: dict[str, tuple[str, str]] = {
+    "reference_et_fraction": ("1", "ET at overpass / hourly standardized reference ET"),
 }
 QA_OUTPUT = "qa_flags"
 

@@ -40,6 +40,7 @@ from .outputs import (
     COMPONENT_OUTPUTS,
     FLUX_OUTPUTS,
     QA_OUTPUT,
+    REFERENCE_OUTPUTS,
     AtomicRaster,
     block_size_for,
     remove_stale_partials,
@@ -49,6 +50,7 @@ from .physics import partition, radiation, turbulence
 from .physics.constants import SECONDS_PER_HOUR
 from .physics.solar import (
     cos_solar_zenith,
+    daylight_hours,
     extraterrestrial_radiation_daily,
     hour_angle,
     inverse_relative_distance,
@@ -188,9 +190,100 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
         max_ndvi_hot=scene.anchors.hot_max_ndvi,
         surface_lapse_rate=scene.anchors.surface_lapse_rate_k_per_km / 1000.0,
         anchor_elevation_range=scene.anchors.max_elevation_difference_m,
+        daily_scaling=scene.daily_scaling,
+        **station_reference_et(scene, lat_rad, lon, doy, utc_hour, cos_z, dr, ea, ea_daily),
     )
     facts = {"centre_lon": lon, "centre_lat": lat, "sun_elevation_deg_centre": elevation_deg}
     return constants, facts
+
+
+def station_reference_et(
+    scene: Scene,
+    lat_rad: float,
+    lon: float,
+    doy: int,
+    utc_hour: float,
+    cos_z: float,
+    dr: float,
+    ea: float | None,
+    ea_daily: float,
+) -> dict:
+    """Hourly (overpass hour) and daily standardized reference ET at the station [mm].
+
+    FAO-56 / ASCE-EWRI (2005) Penman-Monteith for the recipe's reference surface. Returns
+    ``reference_et_hourly`` / ``reference_et_daily`` as None where the recipe lacks the weather
+    they need, and refuses a recipe whose choices need them.
+    """
+    from .physics import reference_et
+
+    ow, dw, ref = scene.overpass, scene.daily, scene.reference_et
+    hourly = daily = None
+    missing_hourly = [
+        k
+        for k, v in (
+            ("overpass.relative_humidity_pct", ow.relative_humidity_pct),
+            ("overpass.wind_speed_m_s", ow.wind_speed_m_s),
+        )
+        if v is None
+    ]
+    if not missing_hourly:
+        if ow.shortwave_in_w_m2 is not None:
+            rs_hour = ow.shortwave_in_w_m2 * 0.0036  # W m-2 held for an hour -> MJ m-2 h-1
+        else:  # clear-sky estimate at the station, as for the pixels (FAO-56 eq. 37 form)
+            tau = float(radiation.clear_sky_transmissivity(ow.station_elevation_m))
+            rs_hour = float(radiation.shortwave_in(cos_z, dr, tau)) * 0.0036
+        hourly = float(
+            reference_et.reference_et_hourly(
+                kelvin(ow.air_temperature_c),
+                float(turbulence.wind_speed_at_2m(ow.wind_speed_m_s, ow.wind_height_m)),
+                rs_hour,
+                lat_rad,
+                lon,
+                doy,
+                utc_hour - 0.5,
+                ow.station_elevation_m,
+                vapour_pressure=ea,
+                reference=ref.surface,
+            )
+        )
+    missing_daily = [] if dw.wind_speed_m_s is not None else ["daily.wind_speed_m_s"]
+    if not missing_daily:
+        if dw.shortwave_mj_m2 is not None:
+            rs_day = dw.shortwave_mj_m2
+        else:
+            ra = extraterrestrial_radiation_daily(lat_rad, doy)
+            n_max = daylight_hours(lat_rad, doy)
+            rs_day = float(
+                radiation.shortwave_daily_from_sunshine(
+                    ra, min(dw.sunshine_hours, float(n_max)), n_max
+                )
+            )
+        daily = float(
+            reference_et.reference_et_daily(
+                kelvin(dw.tmax_c),
+                kelvin(dw.tmin_c),
+                float(turbulence.wind_speed_at_2m(dw.wind_speed_m_s, dw.wind_height_m)),
+                rs_day,
+                lat_rad,
+                doy,
+                ow.station_elevation_m,
+                vapour_pressure=ea_daily,
+                reference=ref.surface,
+            )
+        )
+    needs = []
+    if scene.daily_scaling == "reference_et_fraction":
+        needs += missing_hourly + missing_daily
+    if ref.cold_anchor_fraction is not None:
+        needs += missing_hourly
+    if needs:
+        raise RasterBudgetError(
+            f"scene {scene.id}: reference ET is needed (daily_scaling = "
+            f"'{scene.daily_scaling}', reference_et.cold_anchor_fraction = "
+            f"{ref.cold_anchor_fraction}) but {', '.join(sorted(set(needs)))} "
+            "is missing; add it to the recipe."
+        )
+    return {"reference_et_hourly": hourly, "reference_et_daily": daily}
 
 
 # ----------------------------------------------------------------------------- per-block work
@@ -374,7 +467,16 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
             with np.errstate(invalid="ignore"):
                 qa |= bit(candidates & (datum >= low) & (datum < high), flag)
 
+    c = ctx.constants
+    if c.reference_et_hourly is not None and c.reference_et_hourly > 0:
+        fraction = et_hourly / c.reference_et_hourly  # ET at overpass / hourly reference ET
+    else:
+        fraction = np.full(ts.shape, np.nan)
+    if c.daily_scaling == "reference_et_fraction":
+        et_daily = fraction * c.reference_et_daily
+
     values = {
+        "reference_et_fraction": fraction,
         "net_radiation": rn,
         "ground_heat_flux": g,
         "sensible_heat_flux": h,
@@ -493,12 +595,20 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
         s.station_roughness_m,
         s.blending_height_m,
     )
+    cold_fraction = s.cold_evaporative_fraction
+    k_ref = scene.reference_et.cold_anchor_fraction
+    if k_ref is not None:
+        # cold-anchor LE = k ETr(hour) as a flux, expressed as the EF the calibration imposes
+        cold = chosen["cold"]
+        lam = float(turbulence.latent_heat_of_vaporization(cold.surface_temperature))
+        cold_le = k_ref * ctx.constants.reference_et_hourly * lam / SECONDS_PER_HOUR
+        cold_fraction = min(cold_le / cold.available_energy, 1.2)
     calibration = anchor_method.calibrate(
         chosen["cold"],
         chosen["hot"],
         u_blend,
         s.blending_height_m,
-        s.cold_evaporative_fraction,
+        cold_fraction,
         s.hot_evaporative_fraction,
         s.max_iterations,
         s.tolerance_k,
@@ -514,7 +624,7 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
     }
     facts = {
         "anchors": {k: v.as_dict() | _anchor_xy(grid, v) for k, v in chosen.items()},
-        "calibration": calibration.as_dict(),
+        "calibration": calibration.as_dict() | {"cold_evaporative_fraction": cold_fraction},
     }
     return params, facts
 
@@ -602,6 +712,8 @@ def run_scene(
         written = list(FLUX_OUTPUTS) + (
             list(COMPONENT_OUTPUTS) if settings.write_components else []
         )
+        if constants.reference_et_hourly is not None:
+            written.append("reference_et_fraction")
         variables = (*written, QA_OUTPUT, "land_cover_code")
         params = Pass2Parameters(variables=variables, **method_params)
         params_task = dask.delayed(params)
@@ -619,7 +731,7 @@ def run_scene(
                 for row in locations
             ]
         )
-        descriptions = {**FLUX_OUTPUTS, **COMPONENT_OUTPUTS}
+        descriptions = {**FLUX_OUTPUTS, **COMPONENT_OUTPUTS, **REFERENCE_OUTPUTS}
         tags = {
             "scene_id": scene.id,
             "acquired_utc": scene.acquired_utc.isoformat(),
@@ -765,6 +877,12 @@ def run_scene(
         "scene_constants": asdict(constants),
         "scene_facts": facts,
         "sensible_heat_method": scene.sensible_heat,
+        "daily_scaling": scene.daily_scaling,
+        "reference_et": {
+            "surface": scene.reference_et.surface,
+            "hourly_mm": constants.reference_et_hourly,
+            "daily_mm": constants.reference_et_daily,
+        },
         **method_facts,
         "qa_bits": {
             f"bit {int(math.log2(b))}": {

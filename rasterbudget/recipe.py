@@ -66,6 +66,8 @@ class DailyWeather(_Strict):
     rh_min_pct: Percent | None = None
     shortwave_mj_m2: float | None = Field(None, gt=0.0, le=50.0)
     sunshine_hours: float | None = Field(None, ge=0.0, le=24.0)
+    wind_speed_m_s: float | None = Field(None, gt=0.0, le=60.0)
+    wind_height_m: float = Field(2.0, gt=0.5, le=100.0)
 
     @model_validator(mode="after")
     def _complete(self) -> DailyWeather:
@@ -120,6 +122,13 @@ class EdgeSettings(_Strict):
     wet_edge: Literal["flat", "fitted"] = "flat"
 
 
+class ReferenceEtSettings(_Strict):
+    """``[scene.reference_et]``: FAO-56 / ASCE-EWRI standardized reference ET at the station."""
+
+    surface: Literal["short", "tall"] = "tall"
+    cold_anchor_fraction: float | None = Field(None, gt=0.0, le=1.5)
+
+
 class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
@@ -129,6 +138,8 @@ class Scene(_Strict):
     overpass: OverpassWeather
     daily: DailyWeather
     sensible_heat: Literal["anchors", "edges"] = "anchors"
+    daily_scaling: Literal["evaporative_fraction", "reference_et_fraction"] = "evaporative_fraction"
+    reference_et: ReferenceEtSettings = ReferenceEtSettings()
     radiation: RadiationOptions = RadiationOptions()
     anchors: AnchorSettings = AnchorSettings()
     edges: EdgeSettings = EdgeSettings()

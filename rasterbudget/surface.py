@@ -56,6 +56,9 @@ class SceneConstants:
     max_ndvi_hot: float
     surface_lapse_rate: float = 0.0  # [K m-1] for the elevation-adjusted Ts of the dT relation
     anchor_elevation_range: float = np.inf  # anchors within this height of the station [m]
+    reference_et_hourly: float | None = None  # station reference ET, overpass hour [mm h-1]
+    reference_et_daily: float | None = None  # station reference ET, the day [mm d-1]
+    daily_scaling: str = "evaporative_fraction"
 
 
 @dataclass(frozen=True)
