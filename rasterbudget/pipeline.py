@@ -191,6 +191,7 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
         surface_lapse_rate=scene.anchors.surface_lapse_rate_k_per_km / 1000.0,
         anchor_elevation_range=scene.anchors.max_elevation_difference_m,
         daily_scaling=scene.daily_scaling,
+        max_evaporative_fraction=scene.residual.max_evaporative_fraction,
         **station_reference_et(scene, lat_rad, lon, doy, utc_hour, cos_z, dr, ea, ea_daily),
     )
     facts = {"centre_lon": lon, "centre_lat": lat, "sun_elevation_deg_centre": elevation_deg}
@@ -427,10 +428,12 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
             datum_surface_temperature=state["datum_surface_temperature"],
         )
     le_raw = partition.latent_heat_residual(rn, g, h)
-    le = partition.clip_latent_heat(le_raw, available)
+    # LE may exceed Rn - G only by max_evaporative_fraction (advection: H < 0); default 1
+    ceiling = ctx.constants.max_evaporative_fraction * available
+    le = partition.clip_latent_heat(le_raw, ceiling)
     with np.errstate(invalid="ignore"):
         clipped_low = valid & (le_raw < 0)
-        clipped_high = valid & (le_raw > np.maximum(available, 0.0))
+        clipped_high = valid & (le_raw > np.maximum(ceiling, 0.0))
     h = available - le  # closure Rn = G + H + LE holds after clipping
     ef = partition.evaporative_fraction(le, available)
     lam = turbulence.latent_heat_of_vaporization(ts)

@@ -31,7 +31,8 @@ QA_DESCRIPTIONS: dict[QA, str] = {
     QA.LOW_SUN_OR_SHADOW: "sun lower than run's min_sun_elevation_deg above this pixel's (sloped) "
     "surface, or terrain self-shadow",
     QA.LATENT_HEAT_CLIPPED_AT_ZERO: "H exceeded Rn - G: LE set to 0 and H to Rn - G",
-    QA.LATENT_HEAT_CLIPPED_AT_AVAILABLE: "H was negative: LE set to Rn - G and H to 0",
+    QA.LATENT_HEAT_CLIPPED_AT_AVAILABLE: "LE exceeded residual.max_evaporative_fraction x (Rn - G) "
+    "(1 by default, i.e. H was negative): LE set to that limit and H to the remainder",
     QA.STABILITY_NOT_CONVERGED: "Monin-Obukhov iteration did not converge at this pixel",
     QA.COLD_ANCHOR: "pixel belongs to the cold-anchor population",
     QA.HOT_ANCHOR: "pixel belongs to the hot-anchor population",

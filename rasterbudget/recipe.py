@@ -129,6 +129,12 @@ class ReferenceEtSettings(_Strict):
     cold_anchor_fraction: float | None = Field(None, gt=0.0, le=1.5)
 
 
+class ResidualSettings(_Strict):
+    """``[scene.residual]``: limits on the energy-balance residual."""
+
+    max_evaporative_fraction: float = Field(1.0, ge=1.0, le=1.3)
+
+
 class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
@@ -143,6 +149,7 @@ class Scene(_Strict):
     radiation: RadiationOptions = RadiationOptions()
     anchors: AnchorSettings = AnchorSettings()
     edges: EdgeSettings = EdgeSettings()
+    residual: ResidualSettings = ResidualSettings()
 
     @field_validator("acquired_utc")
     @classmethod

@@ -59,6 +59,7 @@ class SceneConstants:
     reference_et_hourly: float | None = None  # station reference ET, overpass hour [mm h-1]
     reference_et_daily: float | None = None  # station reference ET, the day [mm d-1]
     daily_scaling: str = "evaporative_fraction"
+    max_evaporative_fraction: float = 1.0  # LE clipped to [0, this x (Rn - G)]
 
 
 @dataclass(frozen=True)

@@ -37,6 +37,7 @@ HISTOGRAM_ROWS = (
     "air_density",
     "net_radiation",
     "ground_heat_flux",
+    "stability_temperature",
 )
 ROLES = ("cold", "hot")
 
@@ -76,6 +77,8 @@ def anchor_histograms_block(
         "air_density": state["air_density"],
         "net_radiation": state["net_radiation"],
         "ground_heat_flux": state["ground_heat_flux"],
+        # the plain Ts enters the Monin-Obukhov length, as it does per pixel in pass 2
+        "stability_temperature": state["surface_temperature"],
     }
     out = []
     for role in ROLES:
@@ -112,7 +115,7 @@ class Anchor:
     """One calibration anchor: a population of candidate pixels around a Ts percentile."""
 
     role: str
-    surface_temperature: float  # population mean [K]
+    surface_temperature: float  # population mean of the elevation-adjusted Ts (for dT) [K]
     available_energy: float  # [W m-2]
     net_radiation: float  # [W m-2]
     ground_heat_flux: float  # [W m-2]
@@ -125,6 +128,7 @@ class Anchor:
     ts_range: tuple[float, float] | None  # Ts interval of the population [K]
     row: int
     col: int
+    stability_temperature: float = float("nan")  # mean plain Ts, for the Obukhov length [K]
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -196,6 +200,7 @@ def select_anchor(
         ts_range=(float(TS_LOW + used[0] * TS_STEP), float(TS_LOW + (used[-1] + 1) * TS_STEP)),
         row=row,
         col=col,
+        stability_temperature=mean("stability_temperature"),
     )
 
 
@@ -224,6 +229,7 @@ def anchor_from_pixel(
         ts_range=None,
         row=row,
         col=col,
+        stability_temperature=float(state["surface_temperature"][i, j]),
     )
 
 
@@ -319,6 +325,14 @@ def calibrate(
     z0m = np.array([a.roughness_length for a in anchors])
     rho = np.array([a.air_density for a in anchors])
     ts = np.array([a.surface_temperature for a in anchors])
+    # the Obukhov length takes the plain Ts (as sensible_heat_block does per pixel); the dT
+    # relation takes the elevation-adjusted one. Without a DEM both are the same.
+    ts_stability = np.array(
+        [
+            a.surface_temperature if np.isnan(a.stability_temperature) else a.stability_temperature
+            for a in anchors
+        ]
+    )
     inverse_length = np.zeros(2)
     dt_prev = np.full(2, np.inf)
     converged = False
@@ -331,7 +345,7 @@ def calibrate(
             converged = True
             break
         dt_prev = dt
-        inverse_length = _inverse_obukhov(rho, u_star, ts, h)
+        inverse_length = _inverse_obukhov(rho, u_star, ts_stability, h)
     b = (dt[1] - dt[0]) / (ts[1] - ts[0])
     a = dt[0] - b * ts[0]
     return Calibration(

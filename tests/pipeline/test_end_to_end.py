@@ -20,6 +20,7 @@ EXPECTED_FILES = [f"{n}.tif" for n in FLUX_OUTPUTS] + [
     "classes.csv",
     "quicklook.png",
     "manifest.json",
+    "reference_et_fraction.tif",  # the demo has humidity and wind at overpass
 ]
 
 
