@@ -31,6 +31,10 @@ COMPONENT_OUTPUTS: dict[str, tuple[str, str]] = {
 REFERENCE_OUTPUTS: dict[str, tuple[str, str]] = {
     "reference_et_fraction": ("1", "ET at overpass / hourly standardized reference ET"),
 }
+ENSEMBLE_OUTPUTS: dict[str, tuple[str, str]] = {
+    "et_daily_p10": ("mm d-1", "daily ET, 10th percentile of the uncertainty ensemble"),
+    "et_daily_p90": ("mm d-1", "daily ET, 90th percentile of the uncertainty ensemble"),
+}
 QA_OUTPUT = "qa_flags"
 
 PARTIAL_SUFFIX = ".partial"

@@ -8,6 +8,7 @@ file, temporary names) and computes the tile and class summaries from the same b
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import hashlib
 import itertools
@@ -38,6 +39,7 @@ from .methods import anchors as anchor_method
 from .methods import edges as edge_method
 from .outputs import (
     COMPONENT_OUTPUTS,
+    ENSEMBLE_OUTPUTS,
     FLUX_OUTPUTS,
     QA_OUTPUT,
     REFERENCE_OUTPUTS,
@@ -68,7 +70,8 @@ from .summaries import (
     tile_statistics,
     tiles_geojson,
 )
-from .surface import ClassLookups, SceneConstants, kelvin, surface_block
+from .surface import ClassLookups, SceneConstants, kelvin, perturbed_air, surface_block
+from .uncertainty import Member, ensemble_percentiles, sample_members
 
 CAUTION = (
     "These are model estimates with real uncertainty: field-scale errors of tens of percent are "
@@ -344,6 +347,7 @@ class BlockContext:
     lookups: ClassLookups
     sources: tuple[InputSource, ...]
     method: str = "anchors"
+    member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
 
 
 def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]:
@@ -383,7 +387,40 @@ def pass1_block(ctx: BlockContext, location):
         return edge_method.scatter_histogram_block(state)
     rows, cols = np.mgrid[r0:r1, c0:c1]
     flat = rows.astype(np.float64) * ctx.grid.width + cols
-    return anchor_method.anchor_histograms_block(state, flat)
+    members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
+    return anchor_method.anchor_histograms_block(state, flat, members)
+
+
+def _ensemble_block(ctx, p, state, valid, lam, lam_daily, length) -> dict[str, np.ndarray]:
+    """Daily ET of every ensemble member on one block, reduced to per-pixel percentiles."""
+    c = ctx.constants
+    ts = np.where(valid, state["surface_temperature"], np.nan)
+    daily = np.empty((len(p.members), *ts.shape))
+    for m, (member, calibration) in enumerate(p.members):
+        available, rho = perturbed_air(c, state, member.air_temperature_offset)
+        available = np.where(valid, available, np.nan)
+        # start from the central run's stability: members differ little, so 2-4 iterations do
+        h, _ = anchor_method.sensible_heat_block(
+            ts,
+            state["roughness_length"],
+            rho,
+            calibration,
+            p.blending_height,
+            p.max_iterations,
+            datum_surface_temperature=state["datum_surface_temperature"],
+            initial_inverse_length=length,
+        )
+        le = partition.clip_latent_heat(available - h, c.max_evaporative_fraction * available)
+        if c.daily_scaling == "reference_et_fraction":
+            et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
+            daily[m] = et_hourly / c.reference_et_hourly * c.reference_et_daily
+        else:
+            ef = partition.evaporative_fraction(le, available)
+            daily[m] = partition.et_daily_from_evaporative_fraction(
+                ef, np.maximum(state["net_radiation_daily"], 0.0), lam_daily
+            )
+    low, high = ensemble_percentiles(daily)
+    return {"et_daily_p10": low, "et_daily_p90": high}
 
 
 @dataclass(frozen=True)
@@ -399,6 +436,7 @@ class Pass2Parameters:
     blending_height: float = 200.0
     max_iterations: int = 30
     edges: edge_method.Edges | None = None
+    members: tuple[tuple[Member, anchor_method.Calibration], ...] = ()
 
 
 def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
@@ -410,6 +448,7 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
     ts = state["surface_temperature"]
     rn, g, available = state["net_radiation"], state["ground_heat_flux"], state["available_energy"]
 
+    inverse_length = np.zeros(ts.shape)
     if p.edges is not None:
         # H is what the edges leave of the available energy: (1 - EF) (Rn - G), unclipped here
         ef_edges = edge_method.evaporative_fraction_block(
@@ -426,6 +465,7 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
             p.blending_height,
             p.max_iterations,
             datum_surface_temperature=state["datum_surface_temperature"],
+            inverse_length_out=inverse_length,
         )
     le_raw = partition.latent_heat_residual(rn, g, h)
     # LE may exceed Rn - G only by max_evaporative_fraction (advection: H < 0); default 1
@@ -471,6 +511,9 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
                 qa |= bit(candidates & (datum >= low) & (datum < high), flag)
 
     c = ctx.constants
+    ensemble = {}
+    if p.members:
+        ensemble = _ensemble_block(ctx, p, state, valid, lam, lam_daily, length=inverse_length)
     if c.reference_et_hourly is not None and c.reference_et_hourly > 0:
         fraction = et_hourly / c.reference_et_hourly  # ET at overpass / hourly reference ET
     else:
@@ -479,6 +522,7 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
         et_daily = fraction * c.reference_et_daily
 
     values = {
+        **ensemble,
         "reference_et_fraction": fraction,
         "net_radiation": rn,
         "ground_heat_flux": g,
@@ -533,7 +577,7 @@ def _combine_class(a, b):
 
 
 def _class_block(block: np.ndarray, variables: tuple[str, ...], class_codes: list[int]):
-    values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES}
+    values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES if name in variables}
     codes = block[variables.index("land_cover_code")].astype(np.intp)
     return class_histograms(values, codes, class_codes)
 
@@ -570,6 +614,7 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
         )
     chosen = {}
     explicit = {}
+    pixel_states: dict[str, dict] = {}
     percentiles = {"cold": s.cold_percentile, "hot": s.hot_percentile}
     for r, (role, xy) in enumerate((("cold", s.cold_xy), ("hot", s.hot_xy))):
         explicit[role] = xy is not None
@@ -591,6 +636,7 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
                 f"{grid.crs.to_string()}."
             )
         state = _state(ctx, slice(row, row + 1), slice(col, col + 1))
+        pixel_states[role] = state
         chosen[role] = anchor_method.anchor_from_pixel(state, role, row, col, (0, 0))
     u_blend = anchor_method.wind_at_blending_height(
         scene.overpass.wind_speed_m_s,
@@ -598,14 +644,17 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
         s.station_roughness_m,
         s.blending_height_m,
     )
-    cold_fraction = s.cold_evaporative_fraction
     k_ref = scene.reference_et.cold_anchor_fraction
-    if k_ref is not None:
-        # cold-anchor LE = k ETr(hour) as a flux, expressed as the EF the calibration imposes
-        cold = chosen["cold"]
+
+    def cold_condition(cold: anchor_method.Anchor, factor: float = 1.0) -> float:
+        """The cold anchor's imposed EF: given, or k ETr(hour) expressed as a flux over Rn - G."""
+        if k_ref is None:
+            return min(factor * s.cold_evaporative_fraction, 1.2)
         lam = float(turbulence.latent_heat_of_vaporization(cold.surface_temperature))
-        cold_le = k_ref * ctx.constants.reference_et_hourly * lam / SECONDS_PER_HOUR
-        cold_fraction = min(cold_le / cold.available_energy, 1.2)
+        cold_le = factor * k_ref * ctx.constants.reference_et_hourly * lam / SECONDS_PER_HOUR
+        return min(cold_le / cold.available_energy, 1.2)
+
+    cold_fraction = cold_condition(chosen["cold"])
     calibration = anchor_method.calibrate(
         chosen["cold"],
         chosen["hot"],
@@ -629,6 +678,49 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
         "anchors": {k: v.as_dict() | _anchor_xy(grid, v) for k, v in chosen.items()},
         "calibration": calibration.as_dict() | {"cold_evaporative_fraction": cold_fraction},
     }
+    # ---- ensemble members: the same pass-1 histograms, perturbed choices and weather
+    members = []
+    dense = [
+        anchor_method.dense_histogram(histogram[r], len(ctx.member_air_offsets)) for r in range(2)
+    ]
+    for m, member in enumerate(sample_members(scene.uncertainty)):
+        anchors_m = {}
+        for r, role in enumerate(anchor_method.ROLES):
+            if explicit[role]:
+                st = pixel_states[role]
+                available, rho = perturbed_air(ctx.constants, st, member.air_temperature_offset)
+                anchors_m[role] = dataclasses.replace(
+                    chosen[role],
+                    available_energy=float(available[0, 0]),
+                    air_density=float(rho[0, 0]),
+                )
+            else:
+                pct = member.cold_percentile if role == "cold" else member.hot_percentile
+                anchors_m[role] = anchor_method.select_anchor(
+                    anchor_method.member_histogram(dense[r], m),
+                    role,
+                    pct,
+                    s.percentile_band,
+                    s.min_candidates,
+                    grid.width,
+                )
+        fraction_m = cold_condition(anchors_m["cold"], member.cold_anchor_factor)
+        calibration_m = anchor_method.calibrate(
+            anchors_m["cold"],
+            anchors_m["hot"],
+            u_blend * member.wind_factor,
+            s.blending_height_m,
+            fraction_m,
+            s.hot_evaporative_fraction,
+            s.max_iterations,
+            s.tolerance_k,
+        )
+        members.append((member, calibration_m))
+    if members:
+        params["members"] = tuple(members)
+        facts["ensemble"] = [
+            m.as_dict() | {"a": c.a, "b": c.b, "converged": c.converged} for m, c in members
+        ]
     return params, facts
 
 
@@ -655,6 +747,11 @@ def run_scene(
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths["albedo"])
         described = {role: check_input(path, role, grid) for role, path in paths.items()}
+    if scene.uncertainty.members and scene.sensible_heat != "anchors":
+        raise RasterBudgetError(
+            f"scene {scene.id}: uncertainty.members is implemented for sensible_heat = "
+            "'anchors' only; remove [scene.uncertainty] or use the anchors method."
+        )
     constants, facts = scene_constants(scene, grid)
     lookups = ClassLookups.from_table(table)
 
@@ -673,6 +770,9 @@ def run_scene(
             lookups=lookups,
             sources=sources,
             method=scene.sensible_heat,
+            member_air_offsets=tuple(
+                m.air_temperature_offset for m in sample_members(scene.uncertainty)
+            ),
         )
         ctx_task = dask.delayed(ctx)  # one graph key shared by every block task
         row_edges = [*range(0, grid.height, chunk), grid.height]
@@ -717,6 +817,8 @@ def run_scene(
         )
         if constants.reference_et_hourly is not None:
             written.append("reference_et_fraction")
+        if method_params.get("members"):
+            written += list(ENSEMBLE_OUTPUTS)
         variables = (*written, QA_OUTPUT, "land_cover_code")
         params = Pass2Parameters(variables=variables, **method_params)
         params_task = dask.delayed(params)
@@ -734,7 +836,12 @@ def run_scene(
                 for row in locations
             ]
         )
-        descriptions = {**FLUX_OUTPUTS, **COMPONENT_OUTPUTS, **REFERENCE_OUTPUTS}
+        descriptions = {
+            **FLUX_OUTPUTS,
+            **COMPONENT_OUTPUTS,
+            **REFERENCE_OUTPUTS,
+            **ENSEMBLE_OUTPUTS,
+        }
         tags = {
             "scene_id": scene.id,
             "acquired_utc": scene.acquired_utc.isoformat(),
@@ -768,8 +875,9 @@ def run_scene(
         store = da.store(sources, targets, lock=False, compute=False)
 
         tile = settings.tile_size
-        flux_names = list(FLUX_OUTPUTS)
-        tiled = stacked[: len(flux_names)].rechunk((len(flux_names), tile, tile))
+        flux_names = [n for n in HISTOGRAM_RANGES if n in variables]  # summarised variables
+        index = [variables.index(n) for n in flux_names]
+        tiled = stacked[index].rechunk((len(flux_names), tile, tile))
         tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
         tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
         class_codes = table.codes
@@ -831,7 +939,7 @@ def run_scene(
         out_dir / "tiles.geojson", tiles_geojson(tiles, grid.crs.to_string())
     )
     pixel_area = abs(grid.transform.a * grid.transform.e)
-    classes = class_rows(class_hist, class_moments, table, class_codes, pixel_area)
+    classes = class_rows(flux_names, class_hist, class_moments, table, class_codes, pixel_area)
     classes = [c for c in classes if c["valid_pixels"] > 0]
     outputs["classes.csv"] = write_text_atomic(out_dir / "classes.csv", rows_to_csv(classes))
     if settings.quicklook:

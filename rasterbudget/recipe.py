@@ -135,6 +135,34 @@ class ResidualSettings(_Strict):
     max_evaporative_fraction: float = Field(1.0, ge=1.0, le=1.3)
 
 
+class UncertaintySettings(_Strict):
+    """``[scene.uncertainty]``: ensemble members over what is not known well (anchors method)."""
+
+    members: int = Field(0, ge=0, le=64)
+    cold_percentile_range: tuple[float, float] = (2.0, 10.0)
+    hot_percentile_range: tuple[float, float] = (90.0, 98.0)
+    cold_anchor_factor_range: tuple[float, float] = (0.95, 1.05)
+    air_temperature_offset_range_c: tuple[float, float] = (-1.5, 1.5)
+    wind_factor_range: tuple[float, float] = (0.8, 1.2)
+    seed: int = 20260612
+
+    @model_validator(mode="after")
+    def _ordered(self) -> UncertaintySettings:
+        for name in (
+            "cold_percentile_range",
+            "hot_percentile_range",
+            "cold_anchor_factor_range",
+            "air_temperature_offset_range_c",
+            "wind_factor_range",
+        ):
+            low, high = getattr(self, name)
+            if low > high:
+                raise ValueError(f"{name} must be [low, high], got [{low}, {high}]")
+        if self.members == 1:
+            raise ValueError("members must be 0 (no ensemble) or at least 2")
+        return self
+
+
 class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
@@ -150,6 +178,7 @@ class Scene(_Strict):
     anchors: AnchorSettings = AnchorSettings()
     edges: EdgeSettings = EdgeSettings()
     residual: ResidualSettings = ResidualSettings()
+    uncertainty: UncertaintySettings = UncertaintySettings()
 
     @field_validator("acquired_utc")
     @classmethod

@@ -26,6 +26,8 @@ HISTOGRAM_RANGES: dict[str, tuple[float, float, float]] = {
     "evaporative_fraction": (0.0, 1.0, 0.001),
     "et_hourly": (0.0, 2.0, 0.001),
     "et_daily": (0.0, 20.0, 0.01),
+    "et_daily_p10": (0.0, 20.0, 0.01),
+    "et_daily_p90": (0.0, 20.0, 0.01),
 }
 
 
@@ -74,7 +76,7 @@ def class_histograms(
     the occupied bin range; ``moments`` float64 (n_classes, n_variables, len(CLASS_MOMENTS)) with
     min/max as +inf/-inf where empty.
     """
-    names = list(HISTOGRAM_RANGES)
+    names = list(values)  # a subset of HISTOGRAM_RANGES, in a fixed order
     hists: dict[tuple[int, int], RangeHistogram] = {}
     moments = np.zeros((len(class_codes), len(names), len(CLASS_MOMENTS)))
     moments[..., 3] = np.inf
@@ -109,6 +111,7 @@ def histogram_percentile(counts: np.ndarray, low: float, step: float, q: float) 
 
 
 def class_rows(
+    names: list[str],
     hists: dict[tuple[int, int], RangeHistogram],
     moments: np.ndarray,
     class_table,
@@ -116,7 +119,6 @@ def class_rows(
     pixel_area: float,
 ) -> list[dict]:
     """Rows of ``classes.csv``: statistics per class and the split of available energy."""
-    names = list(HISTOGRAM_RANGES)
     rows = []
     for k, code in enumerate(class_codes):
         n_pixels = int(moments[k, 0, 0])

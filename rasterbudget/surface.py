@@ -230,6 +230,10 @@ def surface_block(
     nan = np.float64(np.nan)
     return {
         "albedo": albedo,
+        "air_temperature": air_temperature,
+        "air_pressure": turbulence.air_pressure(z),
+        "surface_emissivity": eps_surface,
+        "ground_heat_ratio": ratio,
         "edge_candidate": clean & near_station,
         "qa": qa,
         "valid": valid,
@@ -248,6 +252,30 @@ def surface_block(
         "cold_candidate": cold,
         "hot_candidate": hot,
     }
+
+
+def perturbed_air(
+    c: SceneConstants, state: dict[str, np.ndarray], air_temperature_offset: float
+) -> tuple[np.ndarray, np.ndarray]:
+    """Available energy [W m-2] and air density [kg m-3] with the air temperature shifted.
+
+    Used by the uncertainty ensemble: only incoming longwave and air density depend on the
+    overpass air temperature, so Rn' = Rn + eps0 (RL_in' - RL_in) (the surface absorbs eps0 of
+    the change; eq. of :func:`radiation.net_radiation`), G' = (G/Rn) Rn', and rho' from the same
+    pressure at the new temperature (FAO-56 Annex 3 eq. 3-5).
+    """
+    ta = state["air_temperature"]
+    ta_new = ta + air_temperature_offset
+    if c.longwave_in_method == "brutsaert":
+        eps_old = radiation.atmospheric_emissivity_brutsaert(c.vapour_pressure, ta)
+        eps_new = radiation.atmospheric_emissivity_brutsaert(c.vapour_pressure, ta_new)
+    else:  # Bastiaanssen's emissivity depends on transmissivity only
+        eps_old = eps_new = state["longwave_in"] / radiation.longwave_emitted(1.0, ta)
+    delta_lw = radiation.longwave_emitted(eps_new, ta_new) - radiation.longwave_emitted(eps_old, ta)
+    rn = state["net_radiation"] + state["surface_emissivity"] * delta_lw
+    available = (1.0 - state["ground_heat_ratio"]) * rn
+    rho = turbulence.air_density(state["air_pressure"], ta_new)
+    return available, rho
 
 
 def kelvin(celsius: float) -> float:

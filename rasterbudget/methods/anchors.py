@@ -53,7 +53,9 @@ def temperature_bins(surface_temperature: np.ndarray) -> np.ndarray:
 
 
 def anchor_histograms_block(
-    state: dict[str, np.ndarray], flat_index: np.ndarray
+    state: dict[str, np.ndarray],
+    flat_index: np.ndarray,
+    member_rows: list[tuple[np.ndarray, np.ndarray]] = (),
 ) -> tuple[RangeHistogram | None, RangeHistogram | None]:
     """Pass-1 reduction of one block.
 
@@ -61,6 +63,10 @@ def anchor_histograms_block(
     ----------
     state : output of :func:`rasterbudget.surface.surface_block` for the block.
     flat_index : global row-major pixel index of each pixel of the block. [-]
+    member_rows : per ensemble member, its (available energy, air density) arrays; their
+        per-bin sums follow the ``HISTOGRAM_ROWS`` rows (see :func:`member_histogram`).
+    member_rows : per ensemble member, its (available energy, air density) arrays; their
+        per-bin sums follow the ``HISTOGRAM_ROWS`` rows (see :func:`member_histogram`).
 
     Returns
     -------
@@ -86,10 +92,11 @@ def anchor_histograms_block(
         if not mask.any():
             out.append(None)
             continue
+        extra = [x[mask] for pair in member_rows for x in pair]
         out.append(
             range_histogram(
                 temperature_bins(ts[mask]),
-                [weights[name][mask] for name in HISTOGRAM_ROWS[1:]],
+                [weights[name][mask] for name in HISTOGRAM_ROWS[1:]] + extra,
                 min_values=[flat_index[mask]],
             )
         )
@@ -101,10 +108,19 @@ def combine_histograms(a: tuple, b: tuple) -> tuple:
     return tuple(merge_optional(x, y) for x, y in zip(a, b, strict=True))
 
 
-def dense_histogram(histogram: RangeHistogram | None) -> np.ndarray:
-    """One role's pass-1 histogram as an array (len(HISTOGRAM_ROWS) + 1, N_BINS)."""
+def member_histogram(dense: np.ndarray, member: int) -> np.ndarray:
+    """A role's dense histogram with ensemble member ``member``'s energy and density rows."""
+    out = dense.copy()
+    first = len(HISTOGRAM_ROWS) + 2 * member
+    out[HISTOGRAM_ROWS.index("available_energy")] = dense[first]
+    out[HISTOGRAM_ROWS.index("air_density")] = dense[first + 1]
+    return out
+
+
+def dense_histogram(histogram: RangeHistogram | None, n_members: int = 0) -> np.ndarray:
+    """One role's pass-1 histogram as an array (rows, N_BINS); last row: smallest pixel index."""
     if histogram is None:
-        out = np.zeros((len(HISTOGRAM_ROWS) + 1, N_BINS))
+        out = np.zeros((len(HISTOGRAM_ROWS) + 2 * n_members + 1, N_BINS))
         out[-1] = np.inf
         return out
     return histogram.dense(N_BINS)
@@ -372,8 +388,14 @@ def sensible_heat_block(
     max_iterations: int = 30,
     tolerance: float = 0.1,
     datum_surface_temperature: np.ndarray | None = None,
+    initial_inverse_length: np.ndarray | None = None,
+    inverse_length_out: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Per-pixel sensible heat flux [W m-2] and a convergence mask, for one block.
+
+    ``initial_inverse_length`` [m-1] starts the stability iteration from a known state (the
+    ensemble starts each member from the central run's converged 1/L); ``inverse_length_out``, an
+    array of the block's shape, receives the converged 1/L.
 
     dT = a + b Ts_datum (Ts_datum: the elevation-adjusted surface temperature the anchors were
     calibrated on; the plain Ts when not given), then H = rho cp dT / rah with rah iterated to
@@ -393,9 +415,13 @@ def sensible_heat_block(
     z0m, rho, ts, dtc = (
         np.ravel(x)[where] for x in (roughness_length, air_density, surface_temperature, dt)
     )
-    inverse_length = np.zeros(where.size)
+    if initial_inverse_length is None:
+        inverse_length = np.zeros(where.size)
+    else:
+        inverse_length = np.nan_to_num(np.ravel(initial_inverse_length)[where])
     h_prev = np.full(where.size, np.nan)
     h_flat, conv_flat = h.reshape(-1), converged.reshape(-1)
+    length_flat = None if inverse_length_out is None else inverse_length_out.reshape(-1)
     for _ in range(max_iterations):
         if where.size == 0:
             break
@@ -404,6 +430,8 @@ def sensible_heat_block(
         )
         h_new = turbulence.sensible_heat_flux(rho, dtc, rah)
         h_flat[where] = h_new
+        if length_flat is not None:
+            length_flat[where] = inverse_length
         done = np.abs(h_new - h_prev) < tolerance
         conv_flat[where[done]] = True
         keep = ~done
