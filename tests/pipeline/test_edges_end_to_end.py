@@ -51,3 +51,25 @@ def test_edges_scene_closes_and_records_its_edges(edges_run, scene):
     assert (folder / "edges.png").stat().st_size > 10_000
     qa = rasterio.open(folder / "qa_flags.tif").read(1)
     assert not ((qa & (128 | 256)) > 0).any()  # no anchor bits for the edges method
+
+
+def test_edges_need_no_wind_and_no_humidity(tmp_path):
+    from ..conftest import demo_recipe_dict, write_toml
+
+    data = demo_recipe_dict()
+    data["scene"] = data["scene"][:1]
+    scene = data["scene"][0]
+    scene["sensible_heat"] = "edges"
+    for key in ("wind_speed_m_s", "relative_humidity_pct"):
+        scene["overpass"].pop(key, None)
+    scene["daily"].pop("wind_speed_m_s", None)
+    recipe = write_toml(data, tmp_path / "recipe.toml")
+    out = tmp_path / "out"
+    result = CliRunner().invoke(
+        main, ["run", str(recipe), "--out", str(out), "--quiet", "--no-quicklook"]
+    )
+    assert result.exit_code == 0, result.output
+    manifest = json.loads((out / "kessendry_20260614" / "manifest.json").read_text())
+    assert manifest["reference_et"]["hourly_mm"] is None  # no weather for it, none needed
+    et = rasterio.open(out / "kessendry_20260614" / "et_daily.tif").read(1)
+    assert np.isfinite(et).mean() > 0.99
