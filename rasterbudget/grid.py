@@ -28,7 +28,7 @@ from .errors import InputRasterError
 GDAL_OPTIONS = {"GDAL_CACHEMAX": 64, "GDAL_NUM_THREADS": 1}
 
 #: Inputs holding class codes are resampled with nearest neighbour; all others bilinearly.
-CATEGORICAL = {"land_cover"}
+CATEGORICAL = {"land_cover", "cloud_mask"}
 
 
 @dataclass(frozen=True)
@@ -123,6 +123,15 @@ def check_input(path: Path, role: str, grid: Grid) -> dict:
         }
 
 
+#: Unit conversions to the SI/kelvin values used inside: (factor, offset) after scale/offset.
+UNIT_CONVERSIONS = {
+    "percent": (0.01, 0.0),
+    "fraction": (1.0, 0.0),
+    "K": (1.0, 0.0),
+    "C": (1.0, 273.15),
+}
+
+
 @dataclass(frozen=True)
 class InputSource:
     """How to read one input onto the target grid, window by window (small and picklable)."""
@@ -131,23 +140,54 @@ class InputSource:
     path: str
     grid: Grid
     same_grid: bool
+    scale: float | None = None  # None: the file's own
+    offset: float | None = None
+    nodata: float | None = None
+    units: str | None = None
+    resampling_name: str | None = None
 
     @property
     def resampling(self) -> Resampling:
+        if self.resampling_name is not None:
+            return Resampling[self.resampling_name]
         return Resampling.nearest if self.role in CATEGORICAL else Resampling.bilinear
 
 
-def input_source(path: Path, role: str, grid: Grid) -> InputSource:
+def input_source(path: Path, role: str, grid: Grid, spec=None) -> InputSource:
+    """Describe how to read ``path`` as ``role``; ``spec`` holds recipe overrides (or None)."""
     with rasterio.open(path) as src:
-        return InputSource(role=role, path=str(path), grid=grid, same_grid=grid.same_as(src))
+        same = grid.same_as(src)
+    if spec is None:
+        return InputSource(role=role, path=str(path), grid=grid, same_grid=same)
+    return InputSource(
+        role=role,
+        path=str(path),
+        grid=grid,
+        same_grid=same,
+        scale=spec.scale,
+        offset=spec.offset,
+        nodata=spec.nodata,
+        units=spec.units,
+        resampling_name=spec.resampling,
+    )
 
 
-def _read(src, window: Window) -> np.ndarray:
-    band = src.read(1, window=window, masked=True, boundless=False)
-    data = band.astype(np.float64).filled(np.nan)
+def _read(src, window: Window, source: InputSource | None = None) -> np.ndarray:
+    if source is not None and source.nodata is not None:
+        data = src.read(1, window=window).astype(np.float64)
+        data[data == source.nodata] = np.nan
+    else:
+        band = src.read(1, window=window, masked=True, boundless=False)
+        data = band.astype(np.float64).filled(np.nan)
     scale, offset = src.scales[0], src.offsets[0]
+    if source is not None:
+        scale = scale if source.scale is None else source.scale
+        offset = offset if source.offset is None else source.offset
     if scale != 1.0 or offset != 0.0:
         data = data * scale + offset
+    if source is not None and source.units is not None:
+        factor, shift = UNIT_CONVERSIONS[source.units]
+        data = data * factor + shift
     return data
 
 
@@ -166,8 +206,13 @@ def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) ->
     try:
         with rasterio.open(source.path) as src:
             if source.same_grid:
-                data = _read(src, window)
+                data = _read(src, window, source)
             else:
+                extra = (
+                    {}
+                    if source.nodata is None
+                    else {"src_nodata": source.nodata, "nodata": source.nodata}
+                )
                 with WarpedVRT(
                     src,
                     crs=g.crs,
@@ -175,8 +220,9 @@ def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) ->
                     width=g.width,
                     height=g.height,
                     resampling=source.resampling,
+                    **extra,
                 ) as vrt:
-                    data = _read(vrt, window)
+                    data = _read(vrt, window, source)
     except RasterioIOError as err:
         raise InputRasterError(
             f"{source.role} raster {source.path} could not be read at rows {r0}-{r1}, columns "

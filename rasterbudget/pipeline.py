@@ -347,6 +347,8 @@ class BlockContext:
     lookups: ClassLookups
     sources: tuple[InputSource, ...]
     method: str = "anchors"
+    mask_values: tuple[int, ...] = ()  # cloud/QA mask values to drop
+    mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
     member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
 
 
@@ -363,6 +365,9 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
             data["elevation"] = haloed[1:-1, 1:-1]
         else:
             data[source.role] = read_window(source, rows, cols)
+    masked = None
+    if "cloud_mask" in data:
+        masked = mask_pixels(data.pop("cloud_mask"), ctx.mask_values, ctx.mask_bits)
     lon, lat = pixel_lonlat(ctx.grid, rows, cols)
     return surface_block(
         ctx.constants,
@@ -376,7 +381,21 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
         elevation=data.get("elevation"),
         slope=data.get("slope"),
         aspect=data.get("aspect"),
+        masked=masked,
     )
+
+
+def mask_pixels(mask: np.ndarray, values: tuple[int, ...], bits: tuple[int, ...]) -> np.ndarray:
+    """True where the cloud/QA mask holds a value to drop or has any of the given bits set.
+
+    Pixels outside the mask raster (nodata) are kept: the mask only removes what it flags.
+    """
+    finite = np.isfinite(mask)
+    codes = np.where(finite, mask, 0).astype(np.int64)
+    drop = np.isin(codes, values) if values else np.zeros(mask.shape, dtype=bool)
+    for bit in bits:
+        drop |= (codes >> bit) & 1 == 1
+    return drop & finite
 
 
 def pass1_block(ctx: BlockContext, location):
@@ -739,11 +758,14 @@ def run_scene(
     chunk = effective_chunk_size(settings.chunk_size)
     block = block_size_for(chunk)
 
-    paths = {}
+    paths, specs = {}, {}
     for role in REQUIRED_INPUTS + OPTIONAL_INPUTS:
-        value = getattr(scene.inputs, role)
-        if value is not None:
-            paths[role] = resolve_path(recipe, value)
+        spec = scene.inputs.spec(role)
+        if spec is not None:
+            paths[role] = resolve_path(recipe, spec.path)
+            specs[role] = spec
+    if scene.inputs.cloud_mask is not None:
+        paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths["albedo"])
         described = {role: check_input(path, role, grid) for role, path in paths.items()}
@@ -763,13 +785,19 @@ def run_scene(
     env.__enter__()
     writers: list[AtomicRaster] = []
     try:
-        sources = tuple(input_source(path, role, grid) for role, path in paths.items())
+        sources = tuple(
+            input_source(path, role, grid, specs.get(role)) for role, path in paths.items()
+        )
         ctx = BlockContext(
             grid=grid,
             constants=constants,
             lookups=lookups,
             sources=sources,
             method=scene.sensible_heat,
+            mask_values=tuple(
+                scene.inputs.cloud_mask.drop_values if scene.inputs.cloud_mask else ()
+            ),
+            mask_bits=tuple(scene.inputs.cloud_mask.drop_bits if scene.inputs.cloud_mask else ()),
             member_air_offsets=tuple(
                 m.air_temperature_offset for m in sample_members(scene.uncertainty)
             ),

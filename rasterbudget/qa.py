@@ -20,6 +20,7 @@ class QA(IntFlag):
     NO_AVAILABLE_ENERGY = 1 << 9
     RESIDUAL_UNRELIABLE_CLASS = 1 << 10
     UNKNOWN_LAND_COVER = 1 << 11
+    MASKED = 1 << 12
 
 
 #: One line per bit for the README, the manifest and the report.
@@ -40,10 +41,13 @@ QA_DESCRIPTIONS: dict[QA, str] = {
     QA.RESIDUAL_UNRELIABLE_CLASS: "class marked residual_reliable = false (water, snow, built-up): "
     "LE is an energy residual, not a defensible ET estimate",
     QA.UNKNOWN_LAND_COVER: "land-cover code not in the class table; no fluxes computed",
+    QA.MASKED: "dropped by the cloud/QA mask (inputs.cloud_mask); no fluxes computed",
 }
 
 #: Bits that leave a pixel without fluxes (all float outputs NaN).
-QA_NO_FLUXES = QA.INPUT_MISSING | QA.SURFACE_TEMPERATURE_IMPLAUSIBLE | QA.UNKNOWN_LAND_COVER
+QA_NO_FLUXES = (
+    QA.INPUT_MISSING | QA.SURFACE_TEMPERATURE_IMPLAUSIBLE | QA.UNKNOWN_LAND_COVER | QA.MASKED
+)
 
 #: Bits that exclude a pixel from anchor candidates.
 QA_NOT_ANCHOR = (

@@ -35,14 +35,67 @@ class RunSettings(_Strict):
     quicklook: bool = True
 
 
-class SceneInputs(_Strict):
-    """``[scene.inputs]``: raster paths, relative to the recipe file."""
+class InputSpec(_Strict):
+    """One input raster with optional overrides of its own metadata."""
 
-    albedo: str
-    surface_temperature: str
-    land_cover: str
-    ndvi: str | None = None
-    elevation: str | None = None
+    path: str
+    scale: float | None = None  # overrides the file's scale factor
+    offset: float | None = None  # overrides the file's offset
+    nodata: float | None = None  # overrides the file's nodata value
+    units: str | None = None  # albedo: "fraction" | "percent"; surface_temperature: "K" | "C"
+    resampling: Literal["nearest", "bilinear", "cubic", "average"] | None = None
+
+
+class MaskSpec(_Strict):
+    """A cloud or QA mask raster: pixels with a listed value or bit set are dropped."""
+
+    path: str
+    drop_values: list[int] = []
+    drop_bits: list[Annotated[int, Field(ge=0, le=31)]] = []
+
+    @model_validator(mode="after")
+    def _something_to_drop(self) -> MaskSpec:
+        if not self.drop_values and not self.drop_bits:
+            raise ValueError("give drop_values and/or drop_bits: which mask values to drop")
+        return self
+
+
+UNITS = {"albedo": ("fraction", "percent"), "surface_temperature": ("K", "C")}
+
+
+class SceneInputs(_Strict):
+    """``[scene.inputs]``: raster paths (relative to the recipe file) or tables with overrides."""
+
+    albedo: str | InputSpec
+    surface_temperature: str | InputSpec
+    land_cover: str | InputSpec
+    ndvi: str | InputSpec | None = None
+    elevation: str | InputSpec | None = None
+    cloud_mask: MaskSpec | None = None
+
+    @model_validator(mode="after")
+    def _units(self) -> SceneInputs:
+        for role in ("albedo", "surface_temperature", "land_cover", "ndvi", "elevation"):
+            spec = getattr(self, role)
+            if isinstance(spec, InputSpec) and spec.units is not None:
+                allowed = UNITS.get(role)
+                if allowed is None or spec.units not in allowed:
+                    raise ValueError(
+                        f"{role}.units = {spec.units!r} is not understood; "
+                        + (
+                            f"use one of {list(allowed)}"
+                            if allowed
+                            else "this input has no units option"
+                        )
+                    )
+        return self
+
+    def spec(self, role: str) -> InputSpec | None:
+        """The input as an InputSpec (a plain path becomes one without overrides)."""
+        value = getattr(self, role)
+        if value is None or isinstance(value, InputSpec):
+            return value
+        return InputSpec(path=value)
 
 
 class OverpassWeather(_Strict):

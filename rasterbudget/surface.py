@@ -109,6 +109,7 @@ def surface_block(
     elevation: np.ndarray | None = None,
     slope: np.ndarray | None = None,
     aspect: np.ndarray | None = None,
+    masked: np.ndarray | None = None,
 ) -> dict[str, np.ndarray]:
     """Per-pixel radiation budget, ground heat flux, air properties and QA for one block.
 
@@ -147,6 +148,8 @@ def surface_block(
 
     qa = np.zeros(albedo.shape, dtype=np.uint16)
     qa |= np.where(missing, np.uint16(QA.INPUT_MISSING), np.uint16(0))
+    if masked is not None:
+        qa |= np.where(masked, np.uint16(QA.MASKED), np.uint16(0))
     qa |= np.where(implausible_ts, np.uint16(QA.SURFACE_TEMPERATURE_IMPLAUSIBLE), np.uint16(0))
     qa |= np.where(albedo_out, np.uint16(QA.ALBEDO_OUT_OF_CLASS_RANGE), np.uint16(0))
     qa |= np.where(~known & np.isfinite(land_cover), np.uint16(QA.UNKNOWN_LAND_COVER), np.uint16(0))
