@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__
-from .errors import OutputError, RasterBudgetError, SunBelowHorizonError
+from .errors import InputValueError, OutputError, RasterBudgetError, SunBelowHorizonError
 from .grid import (
     GDAL_OPTIONS,
     Grid,
@@ -365,11 +365,16 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
             data["elevation"] = haloed[1:-1, 1:-1]
         else:
             data[source.role] = read_window(source, rows, cols)
+    stats = {
+        role: _input_stats(role, values)
+        for role, values in data.items()
+        if role not in ("slope", "aspect")
+    }
     masked = None
     if "cloud_mask" in data:
         masked = mask_pixels(data.pop("cloud_mask"), ctx.mask_values, ctx.mask_bits)
     lon, lat = pixel_lonlat(ctx.grid, rows, cols)
-    return surface_block(
+    state = surface_block(
         ctx.constants,
         ctx.lookups,
         data["albedo"],
@@ -383,6 +388,64 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
         aspect=data.get("aspect"),
         masked=masked,
     )
+    state["input_stats"] = stats
+    return state
+
+
+#: Per input and block: valid pixels, all pixels, min, max, and a unit-suspicion count
+#: (albedo above 1.5, surface temperature below 100 K).
+def _input_stats(role: str, values: np.ndarray) -> np.ndarray:
+    finite = values[np.isfinite(values)]
+    if role == "albedo":
+        suspicious = np.count_nonzero(finite > 1.5)
+    elif role == "surface_temperature":
+        suspicious = np.count_nonzero(finite < 100.0)
+    else:
+        suspicious = 0
+    low = finite.min() if finite.size else np.inf
+    high = finite.max() if finite.size else -np.inf
+    return np.array([finite.size, values.size, low, high, suspicious], dtype=np.float64)
+
+
+def _merge_stats(a: dict, b: dict) -> dict:
+    out = {}
+    for role in a:
+        x, y = a[role], b[role]
+        out[role] = np.array(
+            [x[0] + y[0], x[1] + y[1], min(x[2], y[2]), max(x[3], y[3]), x[4] + y[4]]
+        )
+    return out
+
+
+def check_input_values(stats: dict, sources: tuple[InputSource, ...]) -> dict:
+    """Refuse inputs that are all nodata or hold values in the wrong units; return a summary."""
+    summary = {}
+    for source in sources:
+        n_valid, n_total, low, high, suspicious = stats[source.role]
+        where = f"inputs.{source.role}"
+        if n_valid == 0 and source.role != "cloud_mask":
+            raise InputValueError(
+                f"{source.role} raster {source.path} holds no valid pixel on the albedo grid "
+                f"(all nodata); check the file and its nodata value ({where})."
+            )
+        if source.role == "albedo" and suspicious > 0.5 * n_valid:
+            raise InputValueError(
+                f"albedo raster {source.path} has values up to {high:.3g} (most above 1.5): it "
+                f'looks like percent; set {where} = {{ path = "...", units = "percent" }}, '
+                "or a scale factor."
+            )
+        if source.role == "surface_temperature" and suspicious > 0.5 * n_valid:
+            raise InputValueError(
+                f"surface temperature raster {source.path} has a median below 100 (values "
+                f"{low:.1f} to {high:.1f}): it looks like degrees Celsius; set {where} = "
+                f'{{ path = "...", units = "C" }}, or a scale/offset.'
+            )
+        summary[source.role] = {
+            "valid_fraction": n_valid / n_total if n_total else 0.0,
+            "min": low,
+            "max": high,
+        }
+    return summary
 
 
 def mask_pixels(mask: np.ndarray, values: tuple[int, ...], bits: tuple[int, ...]) -> np.ndarray:
@@ -403,11 +466,12 @@ def pass1_block(ctx: BlockContext, location):
     (r0, r1), (c0, c1) = location
     state = _state(ctx, slice(r0, r1), slice(c0, c1))
     if ctx.method == "edges":
-        return edge_method.scatter_histogram_block(state)
+        return edge_method.scatter_histogram_block(state), state["input_stats"]
     rows, cols = np.mgrid[r0:r1, c0:c1]
     flat = rows.astype(np.float64) * ctx.grid.width + cols
     members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
-    return anchor_method.anchor_histograms_block(state, flat, members)
+    histograms = anchor_method.anchor_histograms_block(state, flat, members)
+    return histograms, state["input_stats"]
 
 
 def _ensemble_block(ctx, p, state, valid, lam, lam_daily, length) -> dict[str, np.ndarray]:
@@ -819,9 +883,10 @@ def run_scene(
             if scene.sensible_heat == "edges"
             else anchor_method.combine_histograms
         )
-        histogram = _tree_reduce(partials, combine)
+        total = _tree_reduce(partials, lambda a, b: (combine(a[0], b[0]), _merge_stats(a[1], b[1])))
         with TaskProgress(f"{scene.id} pass 1", settings.progress):
-            (histogram,) = dask.compute(histogram)
+            ((histogram, input_stats),) = dask.compute(total)
+        value_summary = check_input_values(input_stats, sources)
         if scene.sensible_heat == "edges":
             e = scene.edges
             fitted = edge_method.fit_edges(
@@ -1001,6 +1066,7 @@ def run_scene(
                 **info,
                 "bytes": Path(info["path"]).stat().st_size,
                 "sha256": sha256_of(Path(info["path"])),
+                "values_on_grid": value_summary.get(role),
             }
             for role, info in described.items()
         },
