@@ -131,6 +131,44 @@ def run(
 
 
 @main.command()
+@click.argument("recipe", type=click.Path(dir_okay=False, path_type=Path))
+@click.option(
+    "--chunk-size",
+    type=click.IntRange(64, 16384),
+    help="Chunk size the run will use (for the memory estimate).",
+)
+@debug_option
+def inspect(recipe: Path, chunk_size: int | None, debug: bool) -> None:
+    """Check RECIPE's inputs before a long run, on a decimated sample of each raster.
+
+    Prints per input its CRS, resolution, extent, overlap with the target grid, dtype, nodata,
+    scale/offset, value range and share of valid pixels; per land-cover class the share of
+    albedos outside the class range; the anchor candidates per role; the sun elevation; and a
+    rough estimate of run time and peak memory. Exits non-zero, with the run's own message,
+    where a run would fail.
+
+    \b
+    Example:
+      rasterbudget inspect workflows/demo.toml
+    """
+    try:
+        from .inspection import inspect_recipe
+        from .landcover import load_class_table
+        from .recipe import load_recipe, resolve_path
+
+        parsed = load_recipe(recipe)
+        table = load_class_table(
+            None
+            if parsed.run.class_table == "builtin"
+            else resolve_path(parsed, parsed.run.class_table)
+        )
+        for line in inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size):
+            click.echo(line)
+    except RasterBudgetError as err:
+        _fail(err, debug)
+
+
+@main.command()
 @click.option(
     "--out",
     "out_dir",

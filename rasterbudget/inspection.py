@@ -1,0 +1,185 @@
+"""``rasterbudget inspect``: look at a recipe's inputs before any heavy work.
+
+Everything here runs on a decimated copy of the target grid (longest side at most
+``SAMPLE_SIDE`` pixels, read through GDAL's warper), so it costs seconds whatever the scene size.
+The checks are the run's own: where a run would fail, inspect fails with the same message.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import rasterio
+from rasterio.transform import Affine
+
+from .errors import AnchorError, RasterBudgetError
+from .grid import GDAL_OPTIONS, Grid, check_input, input_source, read_window, target_grid
+from .landcover import ClassTable
+from .pipeline import (
+    OPTIONAL_INPUTS,
+    REQUIRED_INPUTS,
+    BlockContext,
+    _input_stats,
+    check_input_values,
+    mask_pixels,
+    pixel_lonlat,
+    scene_constants,
+)
+from .recipe import Recipe, Scene, resolve_path
+from .surface import ClassLookups, land_cover_codes, surface_block
+
+SAMPLE_SIDE = 1024
+
+#: Measured on the project's 2-core machine (README, Performance): seconds per megapixel for a
+#: whole run, and resident memory of the libraries; per-pixel working memory per thread.
+SECONDS_PER_MEGAPIXEL = 1.2
+BASE_MEMORY_GB = 0.3
+BYTES_PER_PIXEL_PER_THREAD = 400
+
+
+def sample_grid(grid: Grid) -> tuple[Grid, int]:
+    factor = max(1, math.ceil(max(grid.width, grid.height) / SAMPLE_SIDE))
+    t = grid.transform
+    coarse = Affine(t.a * factor, t.b, t.c, t.d, t.e * factor, t.f)
+    return Grid(
+        grid.crs, coarse, math.ceil(grid.width / factor), math.ceil(grid.height / factor)
+    ), factor
+
+
+def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: int) -> list[str]:
+    """Lines describing one scene's inputs; raises the run's own error where a run would fail."""
+    lines = [f"scene {scene.id}  acquired {scene.acquired_utc.isoformat()}"]
+    paths, specs = {}, {}
+    for role in REQUIRED_INPUTS + OPTIONAL_INPUTS:
+        spec = scene.inputs.spec(role)
+        if spec is not None:
+            paths[role], specs[role] = resolve_path(recipe, spec.path), spec
+    if scene.inputs.cloud_mask is not None:
+        paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
+    with rasterio.Env(**GDAL_OPTIONS):
+        grid = target_grid(paths["albedo"])
+        left, bottom, right, top = grid.bounds
+        lines.append(
+            f"  target grid  {grid.crs.to_string()}  {grid.width} x {grid.height} pixels of "
+            f"{grid.pixel_size[0]:g} x {grid.pixel_size[1]:g}  extent ({left:.1f}, {bottom:.1f}, "
+            f"{right:.1f}, {top:.1f})"
+        )
+        coarse, factor = sample_grid(grid)
+        sources, data = [], {}
+        for role, path in paths.items():
+            info = check_input(path, role, grid)
+            with rasterio.open(path) as src:
+                res = src.res
+                overlap = _overlap_fraction(src, grid)
+            source = input_source(path, role, grid, specs.get(role))
+            sources.append(source)
+            sample = replace(source, grid=coarse, same_grid=False)
+            if role != "cloud_mask" and source.resampling_name is None and role != "land_cover":
+                sample = replace(sample, resampling_name="average")
+            data[role] = read_window(sample, slice(0, coarse.height), slice(0, coarse.width))
+            values = data[role][np.isfinite(data[role])]
+            value_range = (
+                f"{values.min():.4g} to {values.max():.4g}" if values.size else "no valid value"
+            )
+            lines.append(
+                f"  {role:20s} {path}\n"
+                f"      {info['crs']}  {info['width']} x {info['height']}  res {res[0]:g} x "
+                f"{res[1]:g}  {info['dtype']}  nodata {info['nodata']}  scale/offset "
+                f"{info['scale']:g}/{info['offset']:g}"
+                + (
+                    f" (recipe: {specs[role].scale}/{specs[role].offset})"
+                    if role in specs and (specs[role].scale or specs[role].offset)
+                    else ""
+                )
+                + f"\n      covers {overlap:.0%} of the target grid; values {value_range}; "
+                f"valid {values.size / data[role].size:.1%} (sampled 1 in {factor}x{factor})"
+                + ("" if info["same_grid"] else "; warped to the target grid")
+            )
+        check_input_values(
+            {role: _input_stats(role, values) for role, values in data.items()}, tuple(sources)
+        )
+    constants, facts = scene_constants(scene, grid)
+    lines.append(
+        f"  sun elevation at the scene centre {facts['sun_elevation_deg_centre']:.1f} deg "
+        f"({facts['centre_lat']:.3f} N, {facts['centre_lon']:.3f} E)"
+    )
+    lookups = ClassLookups.from_table(table)
+    ctx = BlockContext(grid=coarse, constants=constants, lookups=lookups, sources=())
+    lon, lat = pixel_lonlat(ctx.grid, slice(0, coarse.height), slice(0, coarse.width))
+    masked = None
+    if "cloud_mask" in data:
+        mask_spec = scene.inputs.cloud_mask
+        masked = mask_pixels(
+            data["cloud_mask"], tuple(mask_spec.drop_values), tuple(mask_spec.drop_bits)
+        )
+    state = surface_block(
+        constants,
+        lookups,
+        data["albedo"],
+        data["surface_temperature"],
+        data["land_cover"],
+        lat,
+        lon,
+        ndvi=data.get("ndvi"),
+        elevation=data.get("elevation"),
+        masked=masked,
+    )
+    codes = land_cover_codes(data["land_cover"])
+    lines.append("  per class (sampled): pixels, albedo outside the class range, median Ts")
+    for cls in table.classes:
+        in_class = (codes == cls.code) & np.isfinite(data["albedo"])
+        if not in_class.any():
+            continue
+        albedo = data["albedo"][in_class]
+        outside = np.mean((albedo < cls.albedo_min) | (albedo > cls.albedo_max))
+        ts = data["surface_temperature"][in_class]
+        lines.append(
+            f"      {cls.name:16s} {in_class.sum() * factor**2:>10d}  {outside:6.1%}  "
+            f"{np.nanmedian(ts):7.2f} K"
+        )
+    if scene.sensible_heat == "anchors":
+        for role in ("cold", "hot"):
+            n = int(state[f"{role}_candidate"].sum()) * factor**2
+            lines.append(f"  {role}-anchor candidates: about {n}")
+            if n < scene.anchors.min_candidates and getattr(scene.anchors, f"{role}_xy") is None:
+                raise AnchorError(
+                    f"scene {scene.id}: about {n} {role}-anchor candidate pixels (need "
+                    f"{scene.anchors.min_candidates}); see the per-class table above, lower the "
+                    f"NDVI threshold or give anchors.{role}_xy."
+                )
+    megapixels = grid.width * grid.height / 1e6
+    members = max(1, scene.uncertainty.members)
+    seconds = SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.2 * (members - 1))
+    chunk = min(chunk_size, max(grid.width, grid.height))
+    memory = (
+        BASE_MEMORY_GB + 2 * chunk**2 * BYTES_PER_PIXEL_PER_THREAD * (1 + 0.5 * (members - 1)) / 1e9
+    )
+    lines.append(
+        f"  estimate on 2 cores: about {seconds:.1f} s and {memory:.2f} GB peak memory "
+        f"for {megapixels:.1f} Mpx at chunk {chunk} (rough: measured rates, not this "
+        "scene)"
+    )
+    return lines
+
+
+def _overlap_fraction(src, grid: Grid) -> float:
+    from rasterio.warp import transform_bounds
+
+    left, bottom, right, top = transform_bounds(src.crs, grid.crs, *src.bounds)
+    g_left, g_bottom, g_right, g_top = grid.bounds
+    width = max(0.0, min(right, g_right) - max(left, g_left))
+    height = max(0.0, min(top, g_top) - max(bottom, g_bottom))
+    return width * height / ((g_right - g_left) * (g_top - g_bottom))
+
+
+def inspect_recipe(path: Path, table: ClassTable, recipe: Recipe, chunk_size: int) -> list[str]:
+    out = []
+    for scene in recipe.scene:
+        out += inspect_scene(recipe, scene, table, chunk_size)
+    return out
+
+
+__all__ = ["RasterBudgetError", "inspect_recipe", "inspect_scene"]

@@ -1,0 +1,48 @@
+"""``rasterbudget inspect``: what a user needs before a run, and the run's own errors."""
+
+from __future__ import annotations
+
+from click.testing import CliRunner
+
+from rasterbudget.cli import main
+
+from ..conftest import ROOT, demo_recipe_dict, write_toml
+
+
+def test_inspect_describes_every_input_and_the_anchor_candidates():
+    result = CliRunner().invoke(main, ["inspect", str(ROOT / "workflows" / "demo.toml")])
+    assert result.exit_code == 0, result.output
+    text = result.output
+    for word in (
+        "target grid",
+        "EPSG:32613",
+        "albedo",
+        "surface_temperature",
+        "land_cover",
+        "covers 100% of the target grid",
+        "sun elevation",
+        "cold-anchor candidates",
+        "hot-anchor candidates",
+        "estimate on 2 cores",
+        "grassland",
+    ):
+        assert word in text, word
+    # the planted out-of-range grassland albedos show up in the per-class table
+    grass = next(line for line in text.splitlines() if line.strip().startswith("grassland"))
+    assert "0.1%" in grass
+
+
+def test_inspect_fails_like_the_run_would(tmp_path):
+    data = demo_recipe_dict()
+    data["scene"] = data["scene"][:1]
+    data["scene"][0]["anchors"] = {"cold_min_ndvi": 0.99}
+    recipe = write_toml(data, tmp_path / "recipe.toml")
+    result = CliRunner().invoke(main, ["inspect", str(recipe)])
+    assert result.exit_code == 2
+    assert "cold-anchor candidate" in result.output
+
+    data["scene"][0].pop("anchors")
+    data["scene"][0]["inputs"]["albedo"] = str(tmp_path / "missing.tif")
+    recipe = write_toml(data, tmp_path / "recipe.toml")
+    result = CliRunner().invoke(main, ["inspect", str(recipe)])
+    assert result.exit_code == 2 and "does not exist" in result.output
