@@ -186,10 +186,11 @@ def demo(out_dir: Path, debug: bool) -> None:
       rasterbudget demo --out tiny_rasters
     """
     try:
-        from .demo import make_tiny_rasters
+        from .demo import make_mixed_grid_inputs, make_tiny_rasters
 
         out_dir.mkdir(parents=True, exist_ok=True)
         files = make_tiny_rasters(out_dir)
+        files += make_mixed_grid_inputs(out_dir)
         click.echo(f"wrote {len(files)} rasters to {out_dir}")
     except RasterBudgetError as err:
         _fail(err, debug)

@@ -573,3 +573,93 @@ def make_tiny_rasters(out_dir: pathlib.Path, seed: int = 20260612) -> list[pathl
                 DEMO_OVERPASS_UTC=f"{date}T{DEMO_OVERPASS_UTC}:00Z",
             )
     return written
+
+
+def make_mixed_grid_inputs(tiny_dir: pathlib.Path) -> list[pathlib.Path]:
+    """Inputs "as they come", derived from the early-summer demo scene into ``tiny_dir/mixed``.
+
+    - ``albedo_u16.tif``: albedo x 10000 as uint16 with nodata 0 and a 0.0001 scale factor in the
+      file's metadata (the target grid: 30 m, EPSG:32613).
+    - ``surface_temperature_90m.tif``: surface temperature averaged to 90 m on a grid shifted by
+      half a pixel (EPSG:32613), as a thermal band arrives.
+    - ``land_cover_geographic.tif``: land cover in geographic coordinates (EPSG:4326), nearest.
+    - ``qa_bits.tif``: a bit-packed uint16 QA band; bit 3 marks an invented cloud over the west
+      of the scene, bit 4 its shadow, bit 1 a flag to keep.
+    """
+    from rasterio.warp import Resampling, reproject
+
+    out = tiny_dir / "mixed"
+    out.mkdir(parents=True, exist_ok=True)
+    written = []
+    with rasterio.open(tiny_dir / "albedo_20260614.tif") as src:
+        albedo, profile = src.read(1), src.profile
+    scaled = np.where(np.isfinite(albedo), np.round(albedo * 10000.0), 0).astype(np.uint16)
+    u16 = profile | {"dtype": "uint16", "nodata": 0, "predictor": 2}
+    path = out / "albedo_u16.tif"
+    with rasterio.open(path, "w", **u16) as dst:
+        dst.write(scaled, 1)
+        dst.scales = (0.0001,)
+        dst.update_tags(1, units="1")
+    written.append(path)
+
+    with rasterio.open(tiny_dir / "surface_temperature_20260614.tif") as src:
+        t = src.transform
+        coarse = Affine(t.a * 3, 0, t.c - 15.0, 0, t.e * 3, t.f + 15.0)
+        width, height = src.width // 3 + 1, src.height // 3 + 1
+        lst = np.full((height, width), np.nan, dtype=np.float32)
+        reproject(
+            rasterio.band(src, 1),
+            lst,
+            dst_transform=coarse,
+            dst_crs=src.crs,
+            dst_nodata=np.nan,
+            resampling=Resampling.average,
+        )
+        path = out / "surface_temperature_90m.tif"
+        with rasterio.open(
+            path, "w", **(src.profile | {"transform": coarse, "width": width, "height": height})
+        ) as dst:
+            dst.write(np.round(lst, 2), 1)
+        written.append(path)
+
+    with rasterio.open(tiny_dir / "land_cover.tif") as src:
+        from rasterio.warp import calculate_default_transform
+
+        geo = CRS.from_epsg(4326)
+        transform, width, height = calculate_default_transform(
+            src.crs, geo, src.width, src.height, *src.bounds
+        )
+        codes = np.zeros((height, width), dtype=np.uint8)
+        reproject(
+            rasterio.band(src, 1),
+            codes,
+            dst_transform=transform,
+            dst_crs=geo,
+            dst_nodata=0,
+            resampling=Resampling.nearest,
+        )
+        path = out / "land_cover_geographic.tif"
+        with rasterio.open(
+            path,
+            "w",
+            **(
+                src.profile | {"crs": geo, "transform": transform, "width": width, "height": height}
+            ),
+        ) as dst:
+            dst.write(codes, 1)
+        written.append(path)
+
+    qa = np.zeros(albedo.shape, dtype=np.uint16)
+    rows, cols = np.mgrid[0 : albedo.shape[0], 0 : albedo.shape[1]]
+    cloud = (rows - 200) ** 2 / 30.0**2 + (cols - 60) ** 2 / 45.0**2 < 1.0
+    shadow = (rows - 215) ** 2 / 25.0**2 + (cols - 95) ** 2 / 35.0**2 < 1.0
+    qa[cloud] |= 1 << 3
+    qa[shadow & ~cloud] |= 1 << 4
+    qa[::7, ::7] |= 1 << 1
+    path = out / "qa_bits.tif"
+    with rasterio.open(
+        path, "w", **(profile | {"dtype": "uint16", "nodata": None, "predictor": 2})
+    ) as dst:
+        dst.write(qa, 1)
+    written.append(path)
+    return written

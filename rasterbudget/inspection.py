@@ -115,6 +115,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         masked = mask_pixels(
             data["cloud_mask"], tuple(mask_spec.drop_values), tuple(mask_spec.drop_bits)
         )
+        lines.append(f"  cloud/QA mask drops {masked.mean():.1%} of the pixels")
     state = surface_block(
         constants,
         lookups,

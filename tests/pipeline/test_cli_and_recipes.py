@@ -25,7 +25,8 @@ def test_shipped_recipes_are_valid(recipe):
     for scene in parsed.scene:
         for value in scene.inputs.model_dump().values():
             if value is not None:
-                assert (recipe.parent / value).exists(), value
+                path = value["path"] if isinstance(value, dict) else value
+                assert (recipe.parent / path).exists(), path
 
 
 def test_help_is_fast_and_explains_the_options():
@@ -45,8 +46,8 @@ def test_help_is_fast_and_explains_the_options():
 def test_demo_command_regenerates_the_shipped_rasters(tmp_path):
     result = CliRunner().invoke(main, ["demo", "--out", str(tmp_path)])
     assert result.exit_code == 0, result.output
-    shipped = sorted(p.name for p in TINY.glob("*.tif"))
-    assert sorted(p.name for p in tmp_path.glob("*.tif")) == shipped
+    shipped = sorted(str(p.relative_to(TINY)) for p in TINY.rglob("*.tif"))
+    assert sorted(str(p.relative_to(tmp_path)) for p in tmp_path.rglob("*.tif")) == shipped
     for name in shipped:
         with rasterio.open(TINY / name) as a, rasterio.open(tmp_path / name) as b:
             np.testing.assert_allclose(a.read(), b.read(), atol=1e-3, equal_nan=True)
