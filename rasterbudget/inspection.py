@@ -26,6 +26,7 @@ from .pipeline import (
     check_input_values,
     mask_pixels,
     pixel_lonlat,
+    remap_codes,
     scene_constants,
 )
 from .recipe import Recipe, Scene, resolve_path
@@ -98,9 +99,15 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
                 f"valid {values.size / data[role].size:.1%} (sampled 1 in {factor}x{factor})"
                 + ("" if info["same_grid"] else "; warped to the target grid")
             )
-        check_input_values(
-            {role: _input_stats(role, values) for role, values in data.items()}, tuple(sources)
-        )
+        stats = {role: _input_stats(role, values) for role, values in data.items()}
+        if specs["land_cover"].remap is not None:
+            from .landcover import load_remap
+
+            mapping = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
+            data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
+                data["land_cover"], mapping
+            )
+        check_input_values(stats, tuple(sources))
     constants, facts = scene_constants(scene, grid)
     lines.append(
         f"  sun elevation at the scene centre {facts['sun_elevation_deg_centre']:.1f} deg "

@@ -117,6 +117,42 @@ def _check_class(entry: dict, index: int, source: str) -> LandCoverClass:
     return cls
 
 
+def load_remap(path: str | Path, table: ClassTable) -> dict[int, int]:
+    """A remap table from a user's land-cover codes to the class table's codes.
+
+    CSV: two columns with a header row, ``source_code,class_code``. TOML: a ``[codes]`` table,
+    ``"11" = 1``. Every target code must exist in the class table.
+    """
+    import csv
+
+    path = Path(path)
+    if not path.is_file():
+        raise ClassTableError(f"remap table {path} does not exist; fix inputs.land_cover.remap.")
+    mapping: dict[int, int] = {}
+    try:
+        if path.suffix.lower() == ".toml":
+            for key, value in tomllib.loads(path.read_text("utf-8")).get("codes", {}).items():
+                mapping[int(key)] = int(value)
+        else:
+            with path.open(newline="", encoding="utf-8") as f:
+                for row in csv.DictReader(f):
+                    mapping[int(row["source_code"])] = int(row["class_code"])
+    except (KeyError, ValueError, tomllib.TOMLDecodeError) as err:
+        raise ClassTableError(
+            f"remap table {path} cannot be read ({err}); write a CSV with the header "
+            'source_code,class_code, or a TOML [codes] table of "your code" = class code.'
+        ) from None
+    if not mapping:
+        raise ClassTableError(f"remap table {path} maps no code.")
+    unknown = sorted({v for v in mapping.values() if v not in table.codes})
+    if unknown:
+        raise ClassTableError(
+            f"remap table {path} maps to class code(s) {unknown} that the class table "
+            f"({table.source}) does not define."
+        )
+    return mapping
+
+
 def load_class_table(path: str | Path | None = None) -> ClassTable:
     """Read and validate a class table; ``None`` or ``"builtin"`` gives the shipped default."""
     if path is None or str(path) == DEFAULT_TABLE:

@@ -347,6 +347,7 @@ class BlockContext:
     lookups: ClassLookups
     sources: tuple[InputSource, ...]
     method: str = "anchors"
+    remap: tuple[tuple[int, int], ...] = ()  # user land-cover code -> class code
     mask_values: tuple[int, ...] = ()  # cloud/QA mask values to drop
     mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
     member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
@@ -370,6 +371,10 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
         for role, values in data.items()
         if role not in ("slope", "aspect")
     }
+    if ctx.remap:
+        data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
+            data["land_cover"], dict(ctx.remap)
+        )
     masked = None
     if "cloud_mask" in data:
         masked = mask_pixels(data.pop("cloud_mask"), ctx.mask_values, ctx.mask_bits)
@@ -407,9 +412,32 @@ def _input_stats(role: str, values: np.ndarray) -> np.ndarray:
     return np.array([finite.size, values.size, low, high, suspicious], dtype=np.float64)
 
 
+def remap_codes(codes: np.ndarray, mapping: dict[int, int]) -> tuple[np.ndarray, dict]:
+    """Map a user's land-cover codes to class codes; count the codes the table leaves unmapped."""
+    finite = np.isfinite(codes)
+    values = codes[finite].astype(np.int64)
+    present, counts = np.unique(values, return_counts=True)
+    unmapped = {int(v): int(n) for v, n in zip(present, counts, strict=True) if v not in mapping}
+    out = np.full(codes.shape, np.nan)
+    keys = np.array(sorted(mapping), dtype=np.int64)
+    targets = np.array([mapping[k] for k in keys], dtype=np.float64)
+    where = np.searchsorted(keys, values).clip(0, keys.size - 1)
+    hit = keys[where] == values
+    mapped = np.full(values.shape, np.nan)
+    mapped[hit] = targets[where[hit]]
+    out[finite] = mapped
+    return out, unmapped
+
+
 def _merge_stats(a: dict, b: dict) -> dict:
     out = {}
     for role in a:
+        if role == "land_cover_unmapped":
+            merged = dict(a[role])
+            for code, n in b[role].items():
+                merged[code] = merged.get(code, 0) + n
+            out[role] = merged
+            continue
         x, y = a[role], b[role]
         out[role] = np.array(
             [x[0] + y[0], x[1] + y[1], min(x[2], y[2]), max(x[3], y[3]), x[4] + y[4]]
@@ -420,6 +448,13 @@ def _merge_stats(a: dict, b: dict) -> dict:
 def check_input_values(stats: dict, sources: tuple[InputSource, ...]) -> dict:
     """Refuse inputs that are all nodata or hold values in the wrong units; return a summary."""
     summary = {}
+    unmapped = stats.get("land_cover_unmapped")
+    if unmapped:
+        listed = ", ".join(f"{code} ({n} pixels)" for code, n in sorted(unmapped.items())[:20])
+        raise InputValueError(
+            f"land-cover codes not in the remap table: {listed}; add them to the table named "
+            "by inputs.land_cover.remap."
+        )
     for source in sources:
         n_valid, n_total, low, high, suspicious = stats[source.role]
         where = f"inputs.{source.role}"
@@ -830,6 +865,11 @@ def run_scene(
             specs[role] = spec
     if scene.inputs.cloud_mask is not None:
         paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
+    remap = {}
+    if specs["land_cover"].remap is not None:
+        from .landcover import load_remap
+
+        remap = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths["albedo"])
         described = {role: check_input(path, role, grid) for role, path in paths.items()}
@@ -858,6 +898,7 @@ def run_scene(
             lookups=lookups,
             sources=sources,
             method=scene.sensible_heat,
+            remap=tuple(sorted(remap.items())),
             mask_values=tuple(
                 scene.inputs.cloud_mask.drop_values if scene.inputs.cloud_mask else ()
             ),

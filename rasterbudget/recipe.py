@@ -44,6 +44,7 @@ class InputSpec(_Strict):
     nodata: float | None = None  # overrides the file's nodata value
     units: str | None = None  # albedo: "fraction" | "percent"; surface_temperature: "K" | "C"
     resampling: Literal["nearest", "bilinear", "cubic", "average"] | None = None
+    remap: str | None = None  # land cover only: CSV or TOML table of your codes -> class codes
 
 
 class MaskSpec(_Strict):
@@ -77,6 +78,8 @@ class SceneInputs(_Strict):
     def _units(self) -> SceneInputs:
         for role in ("albedo", "surface_temperature", "land_cover", "ndvi", "elevation"):
             spec = getattr(self, role)
+            if isinstance(spec, InputSpec) and spec.remap is not None and role != "land_cover":
+                raise ValueError(f"{role}.remap: only land_cover takes a remap table")
             if isinstance(spec, InputSpec) and spec.units is not None:
                 allowed = UNITS.get(role)
                 if allowed is None or spec.units not in allowed:
