@@ -89,6 +89,42 @@ def target_grid(albedo_path: Path) -> Grid:
         return Grid(crs=src.crs, transform=src.transform, width=src.width, height=src.height)
 
 
+def grid_from_settings(settings) -> Grid:
+    """A north-up target grid from a CRS, a resolution and bounds (or lon/lat bounds)."""
+    import math
+
+    from rasterio.errors import CRSError
+    from rasterio.transform import from_origin
+
+    try:
+        crs = CRS.from_user_input(settings.crs)
+    except CRSError as err:
+        raise InputRasterError(
+            f'grid.crs = {settings.crs!r} is not a CRS GDAL knows ({err}); give e.g. "EPSG:32613".'
+        ) from None
+    if settings.bounds is not None:
+        left, bottom, right, top = settings.bounds
+    else:
+        left, bottom, right, top = transform_bounds("EPSG:4326", crs, *settings.lonlat_bounds)
+    res = settings.resolution
+    width, height = math.ceil((right - left) / res), math.ceil((top - bottom) / res)
+    if width * height > 2_000_000_000:
+        raise InputRasterError(
+            f"grid of {width} x {height} pixels is implausibly large; check grid.resolution "
+            f"({res}) is in the units of {crs.to_string()}."
+        )
+    return Grid(crs=crs, transform=from_origin(left, top, res, res), width=width, height=height)
+
+
+def overlap_fraction(src, grid: Grid) -> float:
+    """Share of the target grid's extent that the raster covers (bounding boxes)."""
+    left, bottom, right, top = transform_bounds(src.crs, grid.crs, *src.bounds)
+    g_left, g_bottom, g_right, g_top = grid.bounds
+    width = max(0.0, min(right, g_right) - max(left, g_left))
+    height = max(0.0, min(top, g_top) - max(bottom, g_bottom))
+    return width * height / ((g_right - g_left) * (g_top - g_bottom))
+
+
 def check_input(path: Path, role: str, grid: Grid) -> dict:
     """Check one input can be read and overlaps the grid; return a description for the manifest."""
     with _open(path, role) as src:
@@ -120,6 +156,7 @@ def check_input(path: Path, role: str, grid: Grid) -> dict:
             "scale": src.scales[0],
             "offset": src.offsets[0],
             "same_grid": grid.same_as(src),
+            "covers": overlap_fraction(src, grid),
         }
 
 

@@ -16,7 +16,16 @@ import rasterio
 from rasterio.transform import Affine
 
 from .errors import AnchorError, RasterBudgetError
-from .grid import GDAL_OPTIONS, Grid, check_input, input_source, read_window, target_grid
+from .grid import (
+    GDAL_OPTIONS,
+    Grid,
+    check_input,
+    grid_from_settings,
+    input_source,
+    overlap_fraction,
+    read_window,
+    target_grid,
+)
 from .landcover import ClassTable
 from .pipeline import (
     OPTIONAL_INPUTS,
@@ -62,6 +71,8 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths["albedo"])
+        if scene.grid is not None:
+            grid = grid_from_settings(scene.grid)
         left, bottom, right, top = grid.bounds
         lines.append(
             f"  target grid  {grid.crs.to_string()}  {grid.width} x {grid.height} pixels of "
@@ -74,7 +85,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
             info = check_input(path, role, grid)
             with rasterio.open(path) as src:
                 res = src.res
-                overlap = _overlap_fraction(src, grid)
+                overlap = overlap_fraction(src, grid)
             source = input_source(path, role, grid, specs.get(role))
             sources.append(source)
             sample = replace(source, grid=coarse, same_grid=False)
@@ -171,16 +182,6 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         "scene)"
     )
     return lines
-
-
-def _overlap_fraction(src, grid: Grid) -> float:
-    from rasterio.warp import transform_bounds
-
-    left, bottom, right, top = transform_bounds(src.crs, grid.crs, *src.bounds)
-    g_left, g_bottom, g_right, g_top = grid.bounds
-    width = max(0.0, min(right, g_right) - max(left, g_left))
-    height = max(0.0, min(top, g_top) - max(bottom, g_bottom))
-    return width * height / ((g_right - g_left) * (g_top - g_bottom))
 
 
 def inspect_recipe(path: Path, table: ClassTable, recipe: Recipe, chunk_size: int) -> list[str]:

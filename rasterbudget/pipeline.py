@@ -30,6 +30,7 @@ from .grid import (
     Grid,
     InputSource,
     check_input,
+    grid_from_settings,
     input_source,
     read_window,
     target_grid,
@@ -110,6 +111,22 @@ def effective_chunk_size(requested: int) -> int:
 
 
 # ----------------------------------------------------------------------------- scene scalars
+
+
+def metric_pixel_size(grid: Grid, latitude_deg: float) -> tuple[float, float]:
+    """Pixel width and height in metres, for slopes.
+
+    On a geographic grid, degrees become metres at the scene centre's latitude (one value for the
+    whole scene, so slopes do not depend on chunking; the width is off by the cos(latitude)
+    change across the scene, about 1.5 % per degree of latitude near 40 degrees).
+    """
+    dx, dy = grid.pixel_size
+    if grid.crs.is_geographic:
+        metres_per_degree = 111_320.0  # mean length of one degree of latitude (common practice)
+        return dx * metres_per_degree * math.cos(math.radians(latitude_deg)), (
+            dy * metres_per_degree
+        )
+    return dx, dy
 
 
 def scene_centre_lonlat(grid: Grid) -> tuple[float, float]:
@@ -348,6 +365,7 @@ class BlockContext:
     sources: tuple[InputSource, ...]
     method: str = "anchors"
     remap: tuple[tuple[int, int], ...] = ()  # user land-cover code -> class code
+    metric_pixel_size: tuple[float, float] = (1.0, 1.0)  # for slopes [m]
     mask_values: tuple[int, ...] = ()  # cloud/QA mask values to drop
     mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
     member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
@@ -360,7 +378,7 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
         if source.role == "elevation":
             # one-pixel halo for the slope; edge pixels repeat beyond the grid
             haloed = read_window(source, rows, cols, halo=1)
-            dx, dy = ctx.grid.pixel_size
+            dx, dy = ctx.metric_pixel_size
             slope, aspect = slope_aspect(haloed, dx, dy)
             data["slope"], data["aspect"] = slope[1:-1, 1:-1], aspect[1:-1, 1:-1]
             data["elevation"] = haloed[1:-1, 1:-1]
@@ -871,7 +889,9 @@ def run_scene(
 
         remap = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
     with rasterio.Env(**GDAL_OPTIONS):
-        grid = target_grid(paths["albedo"])
+        grid = target_grid(paths["albedo"])  # refuses an albedo without CRS, in any case
+        if scene.grid is not None:
+            grid = grid_from_settings(scene.grid)
         described = {role: check_input(path, role, grid) for role, path in paths.items()}
     if scene.uncertainty.members and scene.sensible_heat != "anchors":
         raise RasterBudgetError(
@@ -899,6 +919,7 @@ def run_scene(
             sources=sources,
             method=scene.sensible_heat,
             remap=tuple(sorted(remap.items())),
+            metric_pixel_size=metric_pixel_size(grid, facts["centre_lat"]),
             mask_values=tuple(
                 scene.inputs.cloud_mask.drop_values if scene.inputs.cloud_mask else ()
             ),

@@ -219,6 +219,26 @@ class UncertaintySettings(_Strict):
         return self
 
 
+class GridSettings(_Strict):
+    """``[scene.grid]``: an explicit target grid instead of the albedo raster's."""
+
+    crs: str
+    resolution: float = Field(gt=0.0)
+    bounds: tuple[float, float, float, float] | None = None  # left, bottom, right, top in crs
+    lonlat_bounds: tuple[float, float, float, float] | None = None  # west, south, east, north
+
+    @model_validator(mode="after")
+    def _one_extent(self) -> GridSettings:
+        if (self.bounds is None) == (self.lonlat_bounds is None):
+            raise ValueError("give exactly one of bounds (in the grid's CRS) or lonlat_bounds")
+        left, bottom, right, top = self.bounds or self.lonlat_bounds
+        if not (left < right and bottom < top):
+            raise ValueError(
+                "bounds must be [left, bottom, right, top] with left < right, bottom < top"
+            )
+        return self
+
+
 class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
@@ -227,6 +247,7 @@ class Scene(_Strict):
     inputs: SceneInputs
     overpass: OverpassWeather
     daily: DailyWeather
+    grid: GridSettings | None = None
     sensible_heat: Literal["anchors", "edges"] = "anchors"
     daily_scaling: Literal["evaporative_fraction", "reference_et_fraction"] = "evaporative_fraction"
     reference_et: ReferenceEtSettings = ReferenceEtSettings()
