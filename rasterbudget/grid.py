@@ -27,6 +27,14 @@ from .errors import InputRasterError
 #: GDAL settings for every read and write (block cache bounded; see DEVELOPERS.md).
 GDAL_OPTIONS = {"GDAL_CACHEMAX": 64, "GDAL_NUM_THREADS": 1}
 
+#: Overpass weather keys that may be rasters (gridded weather), read like any input.
+WEATHER_ROLES = (
+    "air_temperature_c",
+    "relative_humidity_pct",
+    "wind_speed_m_s",
+    "shortwave_in_w_m2",
+)
+
 #: Inputs holding class codes are resampled with nearest neighbour; all others bilinearly.
 CATEGORICAL = {"land_cover", "cloud_mask"}
 
@@ -60,8 +68,9 @@ class Grid:
 
 def _open(path: Path, role: str) -> rasterio.io.DatasetReader:
     if not path.exists():
+        key = f"overpass.{role}" if role in WEATHER_ROLES else f"inputs.{role}"
         raise InputRasterError(
-            f"{role} raster {path} does not exist; check inputs.{role} in the recipe "
+            f"{role} raster {path} does not exist; check {key} in the recipe "
             "(paths are relative to the recipe file)."
         )
     try:

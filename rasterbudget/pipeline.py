@@ -27,6 +27,7 @@ from . import __version__
 from .errors import InputValueError, OutputError, RasterBudgetError, SunBelowHorizonError
 from .grid import (
     GDAL_OPTIONS,
+    WEATHER_ROLES,
     Grid,
     InputSource,
     check_input,
@@ -111,6 +112,22 @@ def effective_chunk_size(requested: int) -> int:
 
 
 # ----------------------------------------------------------------------------- scene scalars
+
+
+def _weather_at_centre(scene: Scene, grid: Grid, paths: dict) -> dict[str, float]:
+    """Each gridded overpass weather raster's value at the target grid's centre pixel."""
+    row, col = grid.height // 2, grid.width // 2
+    values = {}
+    for key in scene.overpass.gridded():
+        source = input_source(paths[key], key, grid)
+        value = float(read_window(source, slice(row, row + 1), slice(col, col + 1))[0, 0])
+        if not np.isfinite(value):
+            raise InputValueError(
+                f"overpass.{key} raster {paths[key]} has no value at the scene centre; the "
+                "weather grid must cover the scene."
+            )
+        values[key] = value
+    return values
 
 
 def metric_pixel_size(grid: Grid, latitude_deg: float) -> tuple[float, float]:
@@ -366,6 +383,8 @@ class BlockContext:
     method: str = "anchors"
     remap: tuple[tuple[int, int], ...] = ()  # user land-cover code -> class code
     metric_pixel_size: tuple[float, float] = (1.0, 1.0)  # for slopes [m]
+    wind_profile: tuple[float, float, float] | None = None  # wind height, z0m station, z blend
+    blending_wind_speed: float = float("nan")  # station wind carried to the blending height
     mask_values: tuple[int, ...] = ()  # cloud/QA mask values to drop
     mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
     member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
@@ -410,8 +429,17 @@ def _state(ctx: BlockContext, rows: slice, cols: slice) -> dict[str, np.ndarray]
         slope=data.get("slope"),
         aspect=data.get("aspect"),
         masked=masked,
+        weather={k: data[k] for k in WEATHER_ROLES if k in data and k != "wind_speed_m_s"},
     )
     state["input_stats"] = stats
+    # wind at the blending height, per pixel from a wind grid or the station's one value
+    if "wind_speed_m_s" in data and ctx.wind_profile is not None:
+        height, station_roughness, blending_height = ctx.wind_profile
+        state["blending_wind_speed"] = anchor_method.wind_at_blending_height(
+            data["wind_speed_m_s"], height, station_roughness, blending_height
+        )
+    else:
+        state["blending_wind_speed"] = np.full(state["qa"].shape, ctx.blending_wind_speed)
     return state
 
 
@@ -545,6 +573,7 @@ def _ensemble_block(ctx, p, state, valid, lam, lam_daily, length) -> dict[str, n
             p.max_iterations,
             datum_surface_temperature=state["datum_surface_temperature"],
             initial_inverse_length=length,
+            blending_wind_speed=state["blending_wind_speed"] * member.wind_factor,
         )
         le = partition.clip_latent_heat(available - h, c.max_evaporative_fraction * available)
         if c.daily_scaling == "reference_et_fraction":
@@ -602,6 +631,7 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
             p.max_iterations,
             datum_surface_temperature=state["datum_surface_temperature"],
             inverse_length_out=inverse_length,
+            blending_wind_speed=state["blending_wind_speed"],
         )
     le_raw = partition.latent_heat_residual(rn, g, h)
     # LE may exceed Rn - G only by max_evaporative_fraction (advection: H < 0); default 1
@@ -738,7 +768,9 @@ def versions() -> dict[str, str]:
 # ----------------------------------------------------------------------------- the scene
 
 
-def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -> tuple:
+def _calibrate_anchors(
+    scene: Scene, grid: Grid, ctx: BlockContext, histogram, scene_gridded: dict
+) -> tuple:
     """Choose (or read) both anchors and fit dT = a + b Ts; return pass-2 parameters and facts."""
     import rasterio
 
@@ -781,6 +813,7 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
         s.blending_height_m,
     )
     k_ref = scene.reference_et.cold_anchor_fraction
+    gridded_wind = "wind_speed_m_s" in scene_gridded
 
     def cold_condition(cold: anchor_method.Anchor, factor: float = 1.0) -> float:
         """The cold anchor's imposed EF: given, or k ETr(hour) expressed as a flux over Rn - G."""
@@ -800,6 +833,7 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
         s.hot_evaporative_fraction,
         s.max_iterations,
         s.tolerance_k,
+        gridded_wind=gridded_wind,
     )
     params = {
         "calibration": calibration,
@@ -850,6 +884,8 @@ def _calibrate_anchors(scene: Scene, grid: Grid, ctx: BlockContext, histogram) -
             s.hot_evaporative_fraction,
             s.max_iterations,
             s.tolerance_k,
+            gridded_wind=gridded_wind,
+            wind_factor=member.wind_factor,
         )
         members.append((member, calibration_m))
     if members:
@@ -883,6 +919,8 @@ def run_scene(
             specs[role] = spec
     if scene.inputs.cloud_mask is not None:
         paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
+    for key, value in scene.overpass.gridded().items():
+        paths[key] = resolve_path(recipe, value)
     remap = {}
     if specs["land_cover"].remap is not None:
         from .landcover import load_remap
@@ -898,7 +936,18 @@ def run_scene(
             f"scene {scene.id}: uncertainty.members is implemented for sensible_heat = "
             "'anchors' only; remove [scene.uncertainty] or use the anchors method."
         )
+    # Gridded weather: scene-wide scalars (reference ET, the sun check, ...) take each raster's
+    # value at the scene centre; pixels use their own values (surface_block, anchors, pass 2).
+    centre_values = {}
+    gridded_keys = scene.overpass.gridded()
+    if gridded_keys:
+        with rasterio.Env(**GDAL_OPTIONS):
+            centre_values = _weather_at_centre(scene, grid, paths)
+        scene = scene.model_copy(
+            update={"overpass": scene.overpass.model_copy(update=centre_values)}
+        )
     constants, facts = scene_constants(scene, grid)
+    facts["gridded_weather_at_centre"] = centre_values
     lookups = ClassLookups.from_table(table)
 
     out_dir = settings.out_dir / scene.id
@@ -920,6 +969,21 @@ def run_scene(
             method=scene.sensible_heat,
             remap=tuple(sorted(remap.items())),
             metric_pixel_size=metric_pixel_size(grid, facts["centre_lat"]),
+            wind_profile=(
+                scene.overpass.wind_height_m,
+                scene.anchors.station_roughness_m,
+                scene.anchors.blending_height_m,
+            ),
+            blending_wind_speed=float("nan")
+            if scene.overpass.wind_speed_m_s is None
+            else (
+                anchor_method.wind_at_blending_height(
+                    scene.overpass.wind_speed_m_s,
+                    scene.overpass.wind_height_m,
+                    scene.anchors.station_roughness_m,
+                    scene.anchors.blending_height_m,
+                )
+            ),
             mask_values=tuple(
                 scene.inputs.cloud_mask.drop_values if scene.inputs.cloud_mask else ()
             ),
@@ -962,7 +1026,9 @@ def run_scene(
             method_params = {"edges": fitted}
             method_facts = {"edges": fitted.as_dict()}
         else:
-            method_params, method_facts = _calibrate_anchors(scene, grid, ctx, histogram)
+            method_params, method_facts = _calibrate_anchors(
+                scene, grid, ctx, histogram, gridded_keys
+            )
         timings["pass1_s"] = time.perf_counter() - t0
 
         # ---------------- pass 2: fluxes, GeoTIFFs and summaries in one compute

@@ -101,15 +101,29 @@ class SceneInputs(_Strict):
         return InputSpec(path=value)
 
 
+#: Overpass weather keys that may also be given as a raster path (gridded weather).
+GRIDDED_WEATHER = (
+    "air_temperature_c",
+    "relative_humidity_pct",
+    "wind_speed_m_s",
+    "shortwave_in_w_m2",
+)
+
+
 class OverpassWeather(_Strict):
-    """``[scene.overpass]``: weather station readings at the acquisition time."""
+    """``[scene.overpass]``: weather at the acquisition time: station numbers, or raster paths
+    (in the key's units) for the keys of ``GRIDDED_WEATHER``."""
 
     station_elevation_m: float = Field(ge=-500.0, le=9000.0)
-    air_temperature_c: float = Field(ge=-60.0, le=60.0)
-    relative_humidity_pct: Percent | None = None
-    wind_speed_m_s: float | None = Field(None, gt=0.0, le=60.0)
+    air_temperature_c: Annotated[float, Field(ge=-60.0, le=60.0)] | str
+    relative_humidity_pct: Percent | str | None = None
+    wind_speed_m_s: Annotated[float, Field(gt=0.0, le=60.0)] | str | None = None
     wind_height_m: float = Field(2.0, gt=0.5, le=100.0)
-    shortwave_in_w_m2: float | None = Field(None, gt=0.0, le=1400.0)
+    shortwave_in_w_m2: Annotated[float, Field(gt=0.0, le=1400.0)] | str | None = None
+
+    def gridded(self) -> dict[str, str]:
+        """The keys given as raster paths, with their paths."""
+        return {k: getattr(self, k) for k in GRIDDED_WEATHER if isinstance(getattr(self, k), str)}
 
 
 class DailyWeather(_Strict):
@@ -285,9 +299,42 @@ def _deep_merge(base: dict, override: dict) -> dict:
     return merged
 
 
+#: Names pydantic gives the branches of a union (e.g. "number or raster path"): not recipe keys.
+_UNION_BRANCHES = {
+    "str",
+    "float",
+    "int",
+    "constrained-float",
+    "InputSpec",
+    "MaskSpec",
+    "tuple[float, float, float, float]",
+}
+
+
+def _clean_errors(err: ValidationError) -> list[dict]:
+    """Errors with union-branch names dropped from their paths, one per key (the most telling)."""
+    cleaned: dict[tuple, dict] = {}
+    for e in err.errors():
+        loc = tuple(p for p in e["loc"] if p not in _UNION_BRANCHES)
+        previous = cleaned.get(loc)
+        # for "number or path" keys prefer the number's complaint over "not a string"
+        if previous is None or previous["type"] in ("string_type", "model_type", "dict_type"):
+            cleaned[loc] = {**e, "loc": loc}
+    # "not a string" for a key whose table form has its own, deeper complaint is noise
+    return [
+        e
+        for loc, e in cleaned.items()
+        if not (
+            e["type"] == "string_type"
+            and any(other[: len(loc)] == loc and other != loc for other in cleaned)
+        )
+    ]
+
+
 def _format_errors(err: ValidationError, source: str, scene_ids: list[str]) -> str:
     parts = []
-    for e in err.errors()[:5]:
+    errors = _clean_errors(err)
+    for e in errors[:5]:
         loc = list(e["loc"])
         if len(loc) >= 2 and loc[0] == "scene" and isinstance(loc[1], int):
             label = scene_ids[loc[1]] if loc[1] < len(scene_ids) else str(loc[1])
@@ -305,7 +352,7 @@ def _format_errors(err: ValidationError, source: str, scene_ids: list[str]) -> s
             else (f" (got {value!r})")
         )
         parts.append(f"{key}: {message}{shown}")
-    more = len(err.errors()) - 5
+    more = len(errors) - 5
     tail = f"; and {more} more" if more > 0 else ""
     return f"recipe {source}: " + "; ".join(parts) + tail
 

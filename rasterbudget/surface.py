@@ -13,7 +13,7 @@ import numpy as np
 
 from .landcover import ClassTable
 from .physics import ground, radiation, turbulence
-from .physics.constants import ZERO_CELSIUS
+from .physics.constants import SOLAR_CONSTANT, ZERO_CELSIUS
 from .physics.solar import (
     cos_incidence,
     cos_solar_zenith,
@@ -110,6 +110,7 @@ def surface_block(
     slope: np.ndarray | None = None,
     aspect: np.ndarray | None = None,
     masked: np.ndarray | None = None,
+    weather: dict[str, np.ndarray] | None = None,
 ) -> dict[str, np.ndarray]:
     """Per-pixel radiation budget, ground heat flux, air properties and QA for one block.
 
@@ -119,6 +120,10 @@ def surface_block(
     latitude, longitude : pixel centres. [rad], [degrees east]
     ndvi, elevation : optional 2-D arrays (NaN = nodata). [-], [m]
     slope, aspect : terrain from the DEM, clockwise from north. [rad]
+    masked : pixels dropped by a cloud/QA mask. [bool]
+    weather : gridded overpass weather on the block, by recipe key (``air_temperature_c`` [degC],
+        ``relative_humidity_pct`` [%], ``shortwave_in_w_m2`` [W m-2]); replaces the station
+        value (and, for air temperature, its lapse-rate adjustment) pixel by pixel.
 
     Returns
     -------
@@ -135,6 +140,9 @@ def surface_block(
         missing |= ~np.isfinite(ndvi)
     if elevation is not None:
         missing |= ~np.isfinite(elevation)
+    weather = weather or {}
+    for values in weather.values():
+        missing |= ~np.isfinite(values)
     t_low, t_high = PLAUSIBLE_SURFACE_TEMPERATURE
     with np.errstate(invalid="ignore"):
         implausible_ts = np.isfinite(surface_temperature) & (
@@ -169,15 +177,33 @@ def surface_block(
     # Shortwave: FAO-56 eq. 37 clear-sky transmissivity, or the station's measured value carried to
     # each pixel's elevation with the same elevation dependence.
     tau = radiation.clear_sky_transmissivity(z)
-    if c.station_transmissivity is not None:
+    if "shortwave_in_w_m2" in weather:
+        # measured on the horizontal: tau = Rs / (Gsc cos(zenith) dr), then onto the slope
+        cos_zenith = cos_solar_zenith(latitude, c.declination, omega)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            tau = np.clip(
+                weather["shortwave_in_w_m2"]
+                / (SOLAR_CONSTANT * np.maximum(cos_zenith, 0.05) * c.inverse_distance),
+                0.05,
+                1.0,
+            )
+    elif c.station_transmissivity is not None:
         tau = tau * (
             c.station_transmissivity / radiation.clear_sky_transmissivity(c.station_elevation)
         )
     sw_in = radiation.shortwave_in(cos_theta, c.inverse_distance, tau)
 
-    air_temperature = c.air_temperature - LAPSE_RATE * (z - c.station_elevation)
+    if "air_temperature_c" in weather:
+        air_temperature = weather["air_temperature_c"] + ZERO_CELSIUS
+    else:
+        air_temperature = c.air_temperature - LAPSE_RATE * (z - c.station_elevation)
+    vapour_pressure = c.vapour_pressure
+    if "relative_humidity_pct" in weather:
+        vapour_pressure = turbulence.vapour_pressure_from_relative_humidity(
+            air_temperature, weather["relative_humidity_pct"]
+        )
     if c.longwave_in_method == "brutsaert":
-        eps_air = radiation.atmospheric_emissivity_brutsaert(c.vapour_pressure, air_temperature)
+        eps_air = radiation.atmospheric_emissivity_brutsaert(vapour_pressure, air_temperature)
     else:
         eps_air = radiation.atmospheric_emissivity_bastiaanssen(np.minimum(tau, 0.99))
     if c.emissivity_method == "ndvi" and ndvi is not None:
@@ -234,6 +260,7 @@ def surface_block(
     return {
         "albedo": albedo,
         "air_temperature": air_temperature,
+        "vapour_pressure": vapour_pressure,
         "air_pressure": turbulence.air_pressure(z),
         "surface_emissivity": eps_surface,
         "ground_heat_ratio": ratio,
@@ -270,8 +297,9 @@ def perturbed_air(
     ta = state["air_temperature"]
     ta_new = ta + air_temperature_offset
     if c.longwave_in_method == "brutsaert":
-        eps_old = radiation.atmospheric_emissivity_brutsaert(c.vapour_pressure, ta)
-        eps_new = radiation.atmospheric_emissivity_brutsaert(c.vapour_pressure, ta_new)
+        ea = state["vapour_pressure"]
+        eps_old = radiation.atmospheric_emissivity_brutsaert(ea, ta)
+        eps_new = radiation.atmospheric_emissivity_brutsaert(ea, ta_new)
     else:  # Bastiaanssen's emissivity depends on transmissivity only
         eps_old = eps_new = state["longwave_in"] / radiation.longwave_emitted(1.0, ta)
     delta_lw = radiation.longwave_emitted(eps_new, ta_new) - radiation.longwave_emitted(eps_old, ta)

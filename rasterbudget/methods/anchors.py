@@ -18,6 +18,7 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..errors import AnchorError
 from ..histograms import RangeHistogram, merge_optional, range_histogram
@@ -38,6 +39,7 @@ HISTOGRAM_ROWS = (
     "net_radiation",
     "ground_heat_flux",
     "stability_temperature",
+    "blending_wind_speed",
 )
 ROLES = ("cold", "hot")
 
@@ -85,6 +87,8 @@ def anchor_histograms_block(
         "ground_heat_flux": state["ground_heat_flux"],
         # the plain Ts enters the Monin-Obukhov length, as it does per pixel in pass 2
         "stability_temperature": state["surface_temperature"],
+        # the pipeline adds it (gridded or station wind); absent: the calibration's one value
+        "blending_wind_speed": state.get("blending_wind_speed", np.full(ts.shape, np.nan)),
     }
     out = []
     for role in ROLES:
@@ -145,6 +149,7 @@ class Anchor:
     row: int
     col: int
     stability_temperature: float = float("nan")  # mean plain Ts, for the Obukhov length [K]
+    blending_wind_speed: float = float("nan")  # mean wind at the blending height [m s-1]
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -217,6 +222,7 @@ def select_anchor(
         row=row,
         col=col,
         stability_temperature=mean("stability_temperature"),
+        blending_wind_speed=mean("blending_wind_speed"),
     )
 
 
@@ -246,12 +252,15 @@ def anchor_from_pixel(
         row=row,
         col=col,
         stability_temperature=float(state["surface_temperature"][i, j]),
+        blending_wind_speed=float(state["blending_wind_speed"][i, j])
+        if "blending_wind_speed" in state
+        else float("nan"),
     )
 
 
 def wind_at_blending_height(
-    wind_speed: float, height: float, station_roughness: float, blending_height: float
-) -> float:
+    wind_speed: ArrayLike, height: float, station_roughness: float, blending_height: float
+) -> np.ndarray | float:
     """Wind speed at the blending height from a station reading, neutral log profile. [m s-1]
 
     u*_station = k u_z / ln(z / z0m_station); u_b = u*_station ln(z_b / z0m_station) / k
@@ -259,11 +268,9 @@ def wind_at_blending_height(
     taken high enough that wind there does not depend on the surface below (Bastiaanssen et al.
     1998 use 100-200 m).
     """
-    return float(
-        wind_speed
-        * np.log(blending_height / station_roughness)
-        / np.log(height / station_roughness)
-    )
+    factor = np.log(blending_height / station_roughness) / np.log(height / station_roughness)
+    result = np.asarray(wind_speed, dtype=np.float64) * factor
+    return float(result) if result.ndim == 0 else result
 
 
 def _resistance(
@@ -317,6 +324,8 @@ def calibrate(
     hot_evaporative_fraction: float,
     max_iterations: int = 30,
     tolerance: float = 0.001,
+    gridded_wind: bool = False,
+    wind_factor: float = 1.0,
 ) -> Calibration:
     """Fit dT = a + b Ts through the two anchors, iterating the stability correction.
 
@@ -349,13 +358,22 @@ def calibrate(
             for a in anchors
         ]
     )
+    # gridded wind: each anchor's own (population mean) wind; otherwise the station's one value
+    wind = np.array(
+        [
+            blending_wind_speed
+            if not np.isfinite(a.blending_wind_speed) or not gridded_wind
+            else a.blending_wind_speed * wind_factor
+            for a in anchors
+        ]
+    )
     inverse_length = np.zeros(2)
     dt_prev = np.full(2, np.inf)
     converged = False
     iteration = 0
     while iteration < max_iterations:
         iteration += 1
-        u_star, rah = _resistance(blending_wind_speed, blending_height, z0m, inverse_length)
+        u_star, rah = _resistance(wind, blending_height, z0m, inverse_length)
         dt = h * rah / (rho * SPECIFIC_HEAT_AIR)
         if np.all(np.abs(dt - dt_prev) < tolerance):
             converged = True
@@ -390,12 +408,14 @@ def sensible_heat_block(
     datum_surface_temperature: np.ndarray | None = None,
     initial_inverse_length: np.ndarray | None = None,
     inverse_length_out: np.ndarray | None = None,
+    blending_wind_speed: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Per-pixel sensible heat flux [W m-2] and a convergence mask, for one block.
 
     ``initial_inverse_length`` [m-1] starts the stability iteration from a known state (the
     ensemble starts each member from the central run's converged 1/L); ``inverse_length_out``, an
-    array of the block's shape, receives the converged 1/L.
+    array of the block's shape, receives the converged 1/L. ``blending_wind_speed`` [m s-1]
+    gives each pixel its own wind (gridded weather) instead of the calibration's one value.
 
     dT = a + b Ts_datum (Ts_datum: the elevation-adjusted surface temperature the anchors were
     calibrated on; the plain Ts when not given), then H = rho cp dT / rah with rah iterated to
@@ -412,8 +432,14 @@ def sensible_heat_block(
     active = np.isfinite(surface_temperature) & np.isfinite(roughness_length) & np.isfinite(dt)
     # Iterate on a compact copy of the still-unconverged pixels, shrinking it as pixels converge.
     where = np.flatnonzero(active)
-    z0m, rho, ts, dtc = (
-        np.ravel(x)[where] for x in (roughness_length, air_density, surface_temperature, dt)
+    wind_field = (
+        np.full(surface_temperature.shape, calibration.blending_wind_speed)
+        if (blending_wind_speed is None)
+        else blending_wind_speed
+    )
+    z0m, rho, ts, dtc, wind = (
+        np.ravel(x)[where]
+        for x in (roughness_length, air_density, surface_temperature, dt, wind_field)
     )
     if initial_inverse_length is None:
         inverse_length = np.zeros(where.size)
@@ -425,9 +451,7 @@ def sensible_heat_block(
     for _ in range(max_iterations):
         if where.size == 0:
             break
-        u_star, rah = _resistance(
-            calibration.blending_wind_speed, blending_height, z0m, inverse_length
-        )
+        u_star, rah = _resistance(wind, blending_height, z0m, inverse_length)
         h_new = turbulence.sensible_heat_flux(rho, dtc, rah)
         h_flat[where] = h_new
         if length_flat is not None:
@@ -436,5 +460,7 @@ def sensible_heat_block(
         conv_flat[where[done]] = True
         keep = ~done
         inverse_length = _inverse_obukhov(rho[keep], u_star[keep], ts[keep], h_new[keep])
-        where, z0m, rho, ts, dtc, h_prev = (x[keep] for x in (where, z0m, rho, ts, dtc, h_new))
+        where, z0m, rho, ts, dtc, wind, h_prev = (
+            x[keep] for x in (where, z0m, rho, ts, dtc, wind, h_new)
+        )
     return h, converged | ~active

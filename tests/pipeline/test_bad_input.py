@@ -100,10 +100,16 @@ def test_unknown_recipe_key_names_its_path(tmp_path):
 
 
 def test_wrong_type_names_key_and_value(tmp_path):
+    recipe = _one_scene(tmp_path, lambda d: d["scene"][0]["overpass"].update(wind_height_m="high"))
+    _run_fails(tmp_path, recipe, "overpass.wind_height_m", "'high'")
+
+
+def test_weather_given_as_a_missing_raster_names_its_key(tmp_path):
+    # a text where a number belongs is read as the path of a weather raster (gridded weather)
     recipe = _one_scene(
         tmp_path, lambda d: d["scene"][0]["overpass"].update(air_temperature_c="warm")
     )
-    _run_fails(tmp_path, recipe, "overpass.air_temperature_c", "'warm'")
+    _run_fails(tmp_path, recipe, "warm", "does not exist", "overpass.air_temperature_c")
 
 
 @pytest.mark.parametrize(
