@@ -37,6 +37,7 @@ from .pipeline import (
     pixel_lonlat,
     remap_codes,
     scene_constants,
+    with_weather_at_centre,
 )
 from .recipe import Recipe, Scene, resolve_path
 from .surface import ClassLookups, land_cover_codes, surface_block
@@ -69,6 +70,8 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
             paths[role], specs[role] = resolve_path(recipe, spec.path), spec
     if scene.inputs.cloud_mask is not None:
         paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
+    for key, value in scene.overpass.gridded().items():
+        paths[key] = resolve_path(recipe, value)
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths["albedo"])
         if scene.grid is not None:
@@ -119,6 +122,12 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
                 data["land_cover"], mapping
             )
         check_input_values(stats, tuple(sources))
+    scene, centre = with_weather_at_centre(scene, grid, paths)
+    if centre:
+        lines.append(
+            "  gridded weather at the scene centre: "
+            + ", ".join(f"{k} {v:.4g}" for k, v in centre.items())
+        )
     constants, facts = scene_constants(scene, grid)
     lines.append(
         f"  sun elevation at the scene centre {facts['sun_elevation_deg_centre']:.1f} deg "
@@ -145,6 +154,11 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         ndvi=data.get("ndvi"),
         elevation=data.get("elevation"),
         masked=masked,
+        weather={
+            k: data[k]
+            for k in ("air_temperature_c", "relative_humidity_pct", "shortwave_in_w_m2")
+            if k in data
+        },
     )
     codes = land_cover_codes(data["land_cover"])
     lines.append("  per class (sampled): pixels, albedo outside the class range, median Ts")

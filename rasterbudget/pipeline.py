@@ -114,6 +114,22 @@ def effective_chunk_size(requested: int) -> int:
 # ----------------------------------------------------------------------------- scene scalars
 
 
+def with_weather_at_centre(scene: Scene, grid: Grid, paths: dict) -> tuple[Scene, dict]:
+    """The scene with each gridded weather key replaced by its raster's value at the centre.
+
+    Scene-wide scalars (the sun check, station reference ET, ...) then work unchanged; pixels
+    still read their own values from the rasters.
+    """
+    import rasterio
+
+    if not scene.overpass.gridded():
+        return scene, {}
+    with rasterio.Env(**GDAL_OPTIONS):
+        values = _weather_at_centre(scene, grid, paths)
+    overpass = scene.overpass.model_copy(update=values)
+    return scene.model_copy(update={"overpass": overpass}), values
+
+
 def _weather_at_centre(scene: Scene, grid: Grid, paths: dict) -> dict[str, float]:
     """Each gridded overpass weather raster's value at the target grid's centre pixel."""
     row, col = grid.height // 2, grid.width // 2
@@ -938,14 +954,8 @@ def run_scene(
         )
     # Gridded weather: scene-wide scalars (reference ET, the sun check, ...) take each raster's
     # value at the scene centre; pixels use their own values (surface_block, anchors, pass 2).
-    centre_values = {}
     gridded_keys = scene.overpass.gridded()
-    if gridded_keys:
-        with rasterio.Env(**GDAL_OPTIONS):
-            centre_values = _weather_at_centre(scene, grid, paths)
-        scene = scene.model_copy(
-            update={"overpass": scene.overpass.model_copy(update=centre_values)}
-        )
+    scene, centre_values = with_weather_at_centre(scene, grid, paths)
     constants, facts = scene_constants(scene, grid)
     facts["gridded_weather_at_centre"] = centre_values
     lookups = ClassLookups.from_table(table)

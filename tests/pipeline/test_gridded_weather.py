@@ -85,3 +85,15 @@ def test_gridded_shortwave_and_wind_act_pixel_by_pixel(tmp_path, demo_run):
     assert 680 < np.nanmedian(west) < 730 and 870 < np.nanmedian(east) < 920
     rn = _read(folder, "net_radiation")
     assert np.all(np.isfinite(rn[np.isfinite(_read(demo_run / SCENE, "net_radiation"))]))
+
+
+def test_inspect_reads_gridded_weather(tmp_path):
+    shape = rasterio.open(TINY / "elevation.tif").shape
+    data = demo_recipe_dict()
+    data["scene"] = data["scene"][:1]
+    data["scene"][0]["overpass"]["wind_speed_m_s"] = _raster(tmp_path, "wind", np.full(shape, 2.5))
+    recipe = write_toml(data, tmp_path / "recipe.toml")
+    result = CliRunner().invoke(main, ["inspect", str(recipe)])
+    assert result.exit_code == 0, result.output
+    assert "gridded weather at the scene centre: wind_speed_m_s 2.5" in result.output
+    assert "wind_speed_m_s" in result.output
