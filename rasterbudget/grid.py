@@ -88,7 +88,8 @@ def target_grid(albedo_path: Path) -> Grid:
         if src.crs is None:
             raise InputRasterError(
                 f"albedo raster {albedo_path} has no CRS; assign one, e.g. "
-                "`gdal_edit.py -a_srs EPSG:32613 FILE` or rioxarray's `.rio.write_crs()`."
+                "`rio edit-info --crs EPSG:32613 FILE` (rasterio's command line) or "
+                "`gdal_edit.py -a_srs EPSG:32613 FILE`."
             )
         if src.transform.b != 0 or src.transform.d != 0 or src.transform.e >= 0:
             raise InputRasterError(
