@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import sys
-import time
 from pathlib import Path
 
 import click
@@ -63,6 +62,11 @@ def main() -> None:
 )
 @click.option("--no-quicklook", is_flag=True, help="Skip the quick-look PNG.")
 @click.option("--quiet", "-q", is_flag=True, help="No progress bars; errors only.")
+@click.option(
+    "--force",
+    is_flag=True,
+    help="Redo every scene, also those whose outputs are complete and up to date.",
+)
 @debug_option
 def run(
     recipe: Path,
@@ -72,6 +76,7 @@ def run(
     components: bool | None,
     no_quicklook: bool,
     quiet: bool,
+    force: bool,
     debug: bool,
 ) -> None:
     """Run every scene of RECIPE and write its outputs to OUT/<scene id>/.
@@ -88,7 +93,7 @@ def run(
     """
     try:
         from .landcover import load_class_table
-        from .pipeline import RunSettings, run_scene
+        from .pipeline import RunSettings
         from .recipe import load_recipe, resolve_path
 
         parsed = load_recipe(recipe)
@@ -105,27 +110,45 @@ def run(
             quicklook=parsed.run.quicklook and not no_quicklook,
             progress=not quiet and sys.stderr.isatty(),
         )
-        for scene in parsed.scene:
-            started = time.perf_counter()
-            result = run_scene(parsed, scene, table, settings)
-            if not quiet:
-                m = result.manifest
-                if m["sensible_heat_method"] == "edges":
-                    e = m["edges"]
-                    how = (
-                        f"dry edge {e['dry_intercept']:.1f} {e['dry_slope']:+.1f} albedo K, "
-                        f"wet edge {e['wet_intercept']:.1f} {e['wet_slope']:+.1f} albedo K"
-                    )
-                else:
-                    a = m["anchors"]
-                    how = (
-                        f"cold anchor {a['cold']['surface_temperature']:.2f} K, "
-                        f"hot anchor {a['hot']['surface_temperature']:.2f} K"
-                    )
-                click.echo(
-                    f"{scene.id}: done in {time.perf_counter() - started:.1f} s -> "
-                    f"{result.out_dir}  ({how})"
+        from .batch import run_batch
+
+        def report(outcome) -> None:
+            if quiet and outcome.status != "failed":
+                return
+            if outcome.status == "failed":
+                if len(parsed.scene) > 1:  # a single scene's error is the one final line
+                    click.echo(f"{outcome.scene_id}: FAILED: {outcome.message}", err=True)
+                return
+            m = outcome.manifest
+            if m.get("sensible_heat_method") == "edges":
+                e = m["edges"]
+                how = (
+                    f"dry edge {e['dry_intercept']:.1f} {e['dry_slope']:+.1f} albedo K, "
+                    f"wet edge {e['wet_intercept']:.1f} {e['wet_slope']:+.1f} albedo K"
                 )
+            else:
+                a = m["anchors"]
+                how = (
+                    f"cold anchor {a['cold']['surface_temperature']:.2f} K, "
+                    f"hot anchor {a['hot']['surface_temperature']:.2f} K"
+                )
+            verb = "done" if outcome.status == "done" else "skipped (complete, up to date)"
+            click.echo(
+                f"{outcome.scene_id}: {verb} in {outcome.seconds:.1f} s -> "
+                f"{settings.out_dir / outcome.scene_id}  ({how})"
+            )
+
+        outcomes = run_batch(parsed, table, settings, report, force=force)
+        failed = [o for o in outcomes if o.status == "failed"]
+        if len(outcomes) == 1 and failed:
+            raise RasterBudgetError(failed[0].message)
+        if failed:
+            click.echo(
+                f"rasterbudget: {len(failed)} of {len(outcomes)} scenes failed "
+                f"(see {settings.out_dir / 'batch.csv'})",
+                err=True,
+            )
+            sys.exit(1)
     except RasterBudgetError as err:
         _fail(err, debug)
 

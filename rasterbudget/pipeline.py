@@ -913,7 +913,11 @@ def _calibrate_anchors(
 
 
 def run_scene(
-    recipe: Recipe, scene: Scene, table: ClassTable, settings: RunSettings
+    recipe: Recipe,
+    scene: Scene,
+    table: ClassTable,
+    settings: RunSettings,
+    fingerprint: str | None = None,
 ) -> SceneResult:
     """Run one scene end to end and return where its outputs are."""
     import dask
@@ -1197,6 +1201,7 @@ def run_scene(
     manifest = {
         "scene_id": scene.id,
         "status": "complete",
+        "fingerprint": fingerprint,
         "written_utc": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
         "caution": CAUTION,
         "inputs": {
@@ -1234,6 +1239,14 @@ def run_scene(
                 "pixels": qa_counts.get(b.name, 0),
             }
             for b in QA
+        },
+        "scene_means_all": {
+            name: (
+                float(class_moments[:, v, 1].sum() / class_moments[:, v, 0].sum())
+                if class_moments[:, v, 0].sum()
+                else None
+            )
+            for v, name in enumerate(flux_names)
         },
         "scene_means": {c["name"]: {v: c.get(f"{v}_mean") for v in flux_names} for c in classes},
         "outputs": {k: str(v.relative_to(out_dir)) for k, v in outputs.items()},

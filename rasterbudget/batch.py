@@ -1,0 +1,143 @@
+"""Batches of scenes: run each, keep going past failures, skip what is complete, summarise.
+
+A scene is complete when its ``manifest.json`` says so and its fingerprint - a hash of the
+scene's parameters, the class table, the run settings that shape outputs, the software version and
+each input's size and modification time - matches the current one. A second run therefore skips
+finished scenes and redoes those whose inputs or parameters changed.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from . import __version__
+from .errors import RasterBudgetError
+from .landcover import ClassTable
+from .outputs import write_text_atomic
+from .pipeline import RunSettings, run_scene
+from .recipe import Recipe, Scene, resolve_path
+from .summaries import rows_to_csv
+
+BATCH_TABLE = "batch.csv"
+
+
+def scene_fingerprint(
+    recipe: Recipe, scene: Scene, table: ClassTable, settings: RunSettings
+) -> str:
+    """Hash of everything that decides a scene's outputs (see module docstring)."""
+    files = {}
+    for key, value in json.loads(scene.inputs.model_dump_json()).items():
+        if value is None:
+            continue
+        path = resolve_path(recipe, value["path"] if isinstance(value, dict) else value)
+        stat = path.stat() if path.exists() else None
+        files[key] = [str(path), stat.st_size if stat else None, stat.st_mtime_ns if stat else None]
+    for key, value in scene.overpass.gridded().items():
+        path = resolve_path(recipe, value)
+        stat = path.stat() if path.exists() else None
+        files[key] = [str(path), stat.st_size if stat else None, stat.st_mtime_ns if stat else None]
+    payload = {
+        "version": __version__,
+        "scene": json.loads(scene.model_dump_json()),
+        "files": files,
+        "class_table": [c.__dict__ for c in table.classes],
+        "settings": {
+            "write_components": settings.write_components,
+            "quicklook": settings.quicklook,
+            "tile_size": settings.tile_size,
+        },
+    }
+    return hashlib.sha256(json.dumps(payload, sort_keys=True).encode()).hexdigest()
+
+
+def is_complete(out_dir: Path, fingerprint: str) -> bool:
+    """True when the scene folder holds a complete manifest with this fingerprint and outputs."""
+    manifest_path = out_dir / "manifest.json"
+    if not manifest_path.is_file():
+        return False
+    try:
+        manifest = json.loads(manifest_path.read_text())
+    except (OSError, json.JSONDecodeError):
+        return False
+    if manifest.get("status") != "complete" or manifest.get("fingerprint") != fingerprint:
+        return False
+    return all((out_dir / name).is_file() for name in manifest.get("outputs", {}).values())
+
+
+@dataclass
+class SceneOutcome:
+    scene_id: str
+    status: str  # "done", "skipped" or "failed"
+    seconds: float
+    message: str = ""
+    manifest: dict = field(default_factory=dict, repr=False)
+
+    def row(self) -> dict:
+        m = self.manifest
+        row = {
+            "scene_id": self.scene_id,
+            "status": self.status,
+            "seconds": round(self.seconds, 2),
+            "message": self.message,
+            "method": m.get("sensible_heat_method", ""),
+        }
+        anchors = m.get("anchors", {})
+        row["cold_anchor_ts_k"] = anchors.get("cold", {}).get("surface_temperature", "")
+        row["hot_anchor_ts_k"] = anchors.get("hot", {}).get("surface_temperature", "")
+        means = m.get("scene_means_all", {})
+        for name in (
+            "net_radiation",
+            "ground_heat_flux",
+            "sensible_heat_flux",
+            "latent_heat_flux",
+            "et_daily",
+        ):
+            row[f"{name}_mean"] = means.get(name, "")
+        return row
+
+
+def run_batch(
+    recipe: Recipe, table: ClassTable, settings: RunSettings, report=None, force: bool = False
+) -> list[SceneOutcome]:
+    """Run every scene; a failing scene is reported and the others go on.
+
+    ``report(outcome)`` is called after each scene (the CLI prints a line). Writes
+    ``OUT/batch.csv`` (atomically) with one row per scene.
+    """
+    from tqdm import tqdm
+
+    outcomes = []
+    scenes = tqdm(
+        recipe.scene, desc="scenes", unit="scene", disable=not settings.progress, leave=False
+    )
+    for scene in scenes:
+        started = time.perf_counter()
+        fingerprint = scene_fingerprint(recipe, scene, table, settings)
+        out_dir = settings.out_dir / scene.id
+        if not force and is_complete(out_dir, fingerprint):
+            manifest = json.loads((out_dir / "manifest.json").read_text())
+            outcome = SceneOutcome(
+                scene.id,
+                "skipped",
+                time.perf_counter() - started,
+                "complete and up to date",
+                manifest,
+            )
+        else:
+            try:
+                result = run_scene(recipe, scene, table, settings, fingerprint=fingerprint)
+                outcome = SceneOutcome(
+                    scene.id, "done", time.perf_counter() - started, "", result.manifest
+                )
+            except RasterBudgetError as err:
+                outcome = SceneOutcome(scene.id, "failed", time.perf_counter() - started, str(err))
+        outcomes.append(outcome)
+        if report is not None:
+            report(outcome)
+    settings.out_dir.mkdir(parents=True, exist_ok=True)
+    write_text_atomic(settings.out_dir / BATCH_TABLE, rows_to_csv([o.row() for o in outcomes]))
+    return outcomes
