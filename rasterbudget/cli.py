@@ -140,6 +140,18 @@ def run(
 
         outcomes = run_batch(parsed, table, settings, report, force=force)
         failed = [o for o in outcomes if o.status == "failed"]
+        if parsed.season:
+            from .season import run_season
+
+            for season in parsed.season:
+                done = run_season(parsed, season, settings)
+                if not quiet:
+                    click.echo(
+                        f"{season.id}: season {season.start} to {season.end} from "
+                        f"{len(done['scenes'])} scenes, mean {done['mean_et_season_mm']:.0f} mm "
+                        f"(reference ET {done['reference_et_total_mm']:.0f} mm) -> "
+                        f"{settings.out_dir / season.id}"
+                    )
         if len(outcomes) == 1 and failed:
             raise RasterBudgetError(failed[0].message)
         if failed:
@@ -209,11 +221,12 @@ def demo(out_dir: Path, debug: bool) -> None:
       rasterbudget demo --out tiny_rasters
     """
     try:
-        from .demo import make_mixed_grid_inputs, make_tiny_rasters
+        from .demo import make_daily_weather, make_mixed_grid_inputs, make_tiny_rasters
 
         out_dir.mkdir(parents=True, exist_ok=True)
         files = make_tiny_rasters(out_dir)
         files += make_mixed_grid_inputs(out_dir)
+        files.append(make_daily_weather(out_dir))
         click.echo(f"wrote {len(files)} rasters to {out_dir}")
     except RasterBudgetError as err:
         _fail(err, debug)

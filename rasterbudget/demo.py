@@ -663,3 +663,33 @@ def make_mixed_grid_inputs(tiny_dir: pathlib.Path) -> list[pathlib.Path]:
         dst.write(qa, 1)
     written.append(path)
     return written
+
+
+def make_daily_weather(out_dir: pathlib.Path, year: int = 2026) -> pathlib.Path:
+    """An invented daily weather table for the demo station, 1 May to 30 September.
+
+    Columns: date, tmax_c, tmin_c, rh_max_pct, rh_min_pct, wind_speed_m_s (at 2 m) and
+    shortwave_mj_m2: a smooth seasonal cycle plus seeded day-to-day noise and a few cloudy days.
+    """
+    rng = np.random.default_rng(year)
+    start, end = _dt.date(year, 5, 1), _dt.date(year, 9, 30)
+    rows = ["date,tmax_c,tmin_c,rh_max_pct,rh_min_pct,wind_speed_m_s,shortwave_mj_m2"]
+    day = start
+    while day <= end:
+        phase = math.cos(2 * math.pi * (day.timetuple().tm_yday - 200) / 365.0)
+        cloudy = rng.random() < 0.12
+        tmax = 24.0 + 8.0 * phase + rng.normal(0, 1.5) - (4.0 if cloudy else 0.0)
+        tmin = tmax - 17.0 + rng.normal(0, 1.5) + (4.0 if cloudy else 0.0)
+        rh_max = min(98.0, 60.0 + rng.normal(0, 6) + (20.0 if cloudy else 0.0))
+        rh_min = max(8.0, min(rh_max - 10.0, 18.0 + rng.normal(0, 4) + (25 if cloudy else 0)))
+        wind = max(0.6, 2.6 + rng.normal(0, 0.7))
+        rs = (30.5 * (0.82 + 0.18 * phase)) * (0.45 if cloudy else 1.0) + rng.normal(0, 0.8)
+        rows.append(
+            f"{day.isoformat()},{tmax:.1f},{tmin:.1f},{rh_max:.0f},{rh_min:.0f},{wind:.1f},{rs:.1f}"
+        )
+        day += _dt.timedelta(days=1)
+    path = out_dir / f"daily_weather_{year}.csv"
+    tmp = path.with_name(path.name + ".partial")
+    tmp.write_text("\n".join(rows) + "\n")
+    os.replace(tmp, path)
+    return path

@@ -281,11 +281,31 @@ class Scene(_Strict):
         return value.astimezone(dt.UTC)
 
 
+class SeasonSettings(_Strict):
+    """``[[season]]``: a season total from some of the recipe's scenes."""
+
+    id: Annotated[str, Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120)]
+    start: dt.date
+    end: dt.date
+    scenes: list[str] = Field(min_length=1)
+    weather: str  # CSV daily weather table, relative to the recipe
+    fraction: Literal["reference_et_fraction", "evaporative_fraction"] = "reference_et_fraction"
+    reference: Literal["short", "tall"] = "tall"
+    station_elevation_m: float | None = None
+
+    @model_validator(mode="after")
+    def _ordered(self) -> SeasonSettings:
+        if self.end < self.start:
+            raise ValueError(f"end ({self.end}) is before start ({self.start})")
+        return self
+
+
 class Recipe(_Strict):
     """A whole recipe: run settings and scenes (defaults already merged into each scene)."""
 
     run: RunSettings = RunSettings()
     scene: list[Scene] = Field(min_length=1)
+    season: list[SeasonSettings] = []
     path: Path | None = None
 
 

@@ -1,0 +1,313 @@
+"""Season totals: the ET fraction interpolated between scene dates, times daily reference ET.
+
+Per pixel the fraction (reference-ET fraction or evaporative fraction) is linear in time between
+consecutive scenes where that pixel is valid, and constant before the first and after the last;
+the season's ET is the sum over days of fraction x daily reference ET. Because the fraction is
+piecewise linear, the sum reduces to scene rasters times scalar day weights, so one chunked pass
+over the stack does it. A pixel masked in a scene is filled from its valid neighbours in time and
+flagged.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as dt
+import itertools
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .errors import RecipeError
+from .physics import reference_et
+from .physics.constants import ZERO_CELSIUS
+
+#: season_qa bits
+SEASON_FILLED = 1  # at least one scene was missing at this pixel and was filled in time
+SEASON_EMPTY = 2  # no valid scene at all: no total
+
+
+@dataclass(frozen=True)
+class SeasonWeights:
+    """Scalar day weights [mm] of each scene (lead, trail) and scene pair (a, b)."""
+
+    lead: np.ndarray  # (S,) reference ET of the days before scene i (fraction held constant)
+    trail: np.ndarray  # (S,) reference ET of the days from scene i on
+    a: np.ndarray  # (S, S) weight of f_i for the days between scenes i < j
+    b: np.ndarray  # (S, S) weight of f_j for the days between scenes i < j
+
+
+def season_weights(
+    scene_days: list[dt.date], days: list[dt.date], etr: np.ndarray
+) -> SeasonWeights:
+    """Day weights for scenes (sorted by date) over the season's days with their reference ET."""
+    n = len(scene_days)
+    t = np.array([(d - days[0]).days for d in days], dtype=float)
+    ts = np.array([(d - days[0]).days for d in scene_days], dtype=float)
+    lead = np.array([etr[t < ts[i]].sum() for i in range(n)])
+    trail = np.array([etr[t >= ts[i]].sum() for i in range(n)])
+    a = np.zeros((n, n))
+    b = np.zeros((n, n))
+    for i in range(n):
+        for j in range(i + 1, n):
+            inside = (t >= ts[i]) & (t < ts[j])
+            if ts[j] == ts[i]:
+                continue
+            w = (t[inside] - ts[i]) / (ts[j] - ts[i])
+            a[i, j] = ((1.0 - w) * etr[inside]).sum()
+            b[i, j] = (w * etr[inside]).sum()
+    return SeasonWeights(lead, trail, a, b)
+
+
+def season_total_block(fractions: np.ndarray, w: SeasonWeights) -> tuple[np.ndarray, ...]:
+    """Season ET [mm], valid-scene count and QA for one block of a (S, rows, cols) stack."""
+    n = fractions.shape[0]
+    valid = np.isfinite(fractions)
+    total = np.zeros(fractions.shape[1:])
+    last = np.full(fractions.shape[1:], -1)
+    f_last = np.zeros(fractions.shape[1:])
+    for k in range(n):
+        v = valid[k]
+        f = np.where(v, fractions[k], 0.0)
+        first = v & (last < 0)
+        total += np.where(first, f * w.lead[k], 0.0)
+        later = v & (last >= 0)
+        prev = np.maximum(last, 0)
+        total += np.where(later, f_last * w.a[prev, k] + f * w.b[prev, k], 0.0)
+        f_last = np.where(v, f, f_last)
+        last = np.where(v, k, last)
+    count = valid.sum(axis=0)
+    total = np.where(last >= 0, total + f_last * w.trail[np.maximum(last, 0)], np.nan)
+    qa = np.where(count < n, SEASON_FILLED, 0) | np.where(count == 0, SEASON_EMPTY, 0)
+    return total, count.astype(np.uint8), qa.astype(np.uint8)
+
+
+WEATHER_COLUMNS = ("tmax_c", "tmin_c", "wind_speed_m_s", "shortwave_mj_m2")
+
+
+def daily_reference_et(
+    path: Path, days: list[dt.date], latitude_rad: float, elevation: float, surface: str
+) -> np.ndarray:
+    """Daily reference ET [mm d-1] for the days from a CSV weather table.
+
+    Columns: ``date`` and either ``reference_et_mm`` or ``tmax_c, tmin_c, wind_speed_m_s``
+    (at 2 m), ``shortwave_mj_m2`` and ``vapour_pressure_kpa`` or ``rh_max_pct, rh_min_pct``.
+    """
+    if not path.is_file():
+        raise RecipeError(f"daily weather table {path} does not exist; fix season.weather.")
+    with path.open(newline="", encoding="utf-8") as f:
+        rows = {row["date"]: row for row in csv.DictReader(f)}
+    missing = [d.isoformat() for d in days if d.isoformat() not in rows]
+    if missing:
+        raise RecipeError(
+            f"daily weather table {path} lacks {len(missing)} day(s) of the season, first "
+            f"{', '.join(missing[:5])}; add them (one row per day, column 'date' as YYYY-MM-DD)."
+        )
+    out = np.empty(len(days))
+    for k, day in enumerate(days):
+        row = rows[day.isoformat()]
+        try:
+            if row.get("reference_et_mm"):
+                out[k] = float(row["reference_et_mm"])
+                continue
+            values = {c: float(row[c]) for c in WEATHER_COLUMNS}
+            ea = float(row["vapour_pressure_kpa"]) if row.get("vapour_pressure_kpa") else None
+            out[k] = float(
+                reference_et.reference_et_daily(
+                    values["tmax_c"] + ZERO_CELSIUS,
+                    values["tmin_c"] + ZERO_CELSIUS,
+                    values["wind_speed_m_s"],
+                    values["shortwave_mj_m2"],
+                    latitude_rad,
+                    day.timetuple().tm_yday,
+                    elevation,
+                    vapour_pressure=ea,
+                    rh_max=None if ea is not None else float(row["rh_max_pct"]),
+                    rh_min=None if ea is not None else float(row["rh_min_pct"]),
+                    reference=surface,
+                )
+            )
+        except (KeyError, ValueError, TypeError) as err:
+            raise RecipeError(
+                f"daily weather table {path}, date {day}: cannot read {err}; give "
+                "reference_et_mm, or tmax_c, tmin_c, wind_speed_m_s, shortwave_mj_m2 and "
+                "vapour_pressure_kpa (or rh_max_pct, rh_min_pct)."
+            ) from None
+    return out
+
+
+def season_days(start: dt.date, end: dt.date) -> list[dt.date]:
+    return [start + dt.timedelta(days=k) for k in range((end - start).days + 1)]
+
+
+def write_season_manifest(path: Path, content: dict) -> None:
+    from .outputs import write_text_atomic
+
+    write_text_atomic(path, json.dumps(content, indent=2, default=str))
+
+
+def grid_check(paths: list[Path]) -> None:
+    import rasterio
+
+    with rasterio.open(paths[0]) as first:
+        ref = (first.crs, first.transform, first.shape)
+    for p in paths[1:]:
+        with rasterio.open(p) as src:
+            if (src.crs, src.transform, src.shape) != ref:
+                raise RecipeError(
+                    f"season scenes are on different grids ({paths[0].parent.name} and "
+                    f"{p.parent.name}); give them one target grid ([scene.grid] in [defaults])."
+                )
+
+
+def nan_to_none(x: float) -> float | None:
+    return None if x is None or (isinstance(x, float) and math.isnan(x)) else x
+
+
+def run_season(recipe, season, settings) -> dict:
+    """Compute one season's totals from its scenes' outputs in one chunked pass."""
+    import dask
+    import dask.array as da
+    import rasterio
+
+    from .grid import GDAL_OPTIONS, Grid
+    from .outputs import AtomicRaster, block_size_for, remove_stale_partials
+    from .pipeline import effective_chunk_size, scene_centre_lonlat
+
+    scenes = {s.id: s for s in recipe.scene}
+    unknown = [i for i in season.scenes if i not in scenes]
+    if unknown:
+        raise RecipeError(f"season {season.id}: scene id(s) {unknown} are not in the recipe.")
+    chosen = sorted((scenes[i] for i in season.scenes), key=lambda s: s.acquired_utc)
+    stem = season.fraction
+    paths = [settings.out_dir / s.id / f"{stem}.tif" for s in chosen]
+    absent = [str(p) for p in paths if not p.is_file()]
+    if absent:
+        raise RecipeError(
+            f"season {season.id}: {stem} is missing for {len(absent)} scene(s) ({absent[0]}...); "
+            "run those scenes first (reference_et_fraction needs humidity and wind at overpass)."
+        )
+    grid_check(paths)
+    with rasterio.open(paths[0]) as src:
+        grid = Grid(src.crs, src.transform, src.width, src.height)
+    days = season_days(season.start, season.end)
+    _, lat = scene_centre_lonlat(grid)
+    elevation = (
+        season.station_elevation_m
+        if season.station_elevation_m is not None
+        else chosen[0].overpass.station_elevation_m
+    )
+    etr = daily_reference_et(
+        Path(_resolve(recipe, season.weather)), days, math.radians(lat), elevation, season.reference
+    )
+    weights = season_weights([s.acquired_utc.date() for s in chosen], days, etr)
+
+    out_dir = settings.out_dir / season.id
+    out_dir.mkdir(parents=True, exist_ok=True)
+    remove_stale_partials(out_dir)
+    chunk = effective_chunk_size(settings.chunk_size)
+    block = block_size_for(chunk)
+    row_edges = [*range(0, grid.height, chunk), grid.height]
+    col_edges = [*range(0, grid.width, chunk), grid.width]
+
+    def block_task(r0, r1, c0, c1):
+        window = rasterio.windows.Window(c0, r0, c1 - c0, r1 - r0)
+        stack = []
+        for p in paths:
+            with rasterio.open(p) as src:
+                stack.append(src.read(1, window=window).astype(np.float64))
+        total, count, qa = season_total_block(np.stack(stack), weights)
+        return np.stack([total, count.astype(np.float64), qa.astype(np.float64)])
+
+    blocks = da.block(
+        [
+            [
+                da.from_delayed(
+                    dask.delayed(block_task)(r0, r1, c0, c1),
+                    shape=(3, r1 - r0, c1 - c0),
+                    dtype=np.float64,
+                )
+                for c0, c1 in itertools.pairwise(col_edges)
+            ]
+            for r0, r1 in itertools.pairwise(row_edges)
+        ]
+    )
+    writers = [
+        AtomicRaster(
+            out_dir / "et_season.tif",
+            grid,
+            "float32",
+            np.nan,
+            block,
+            "et_season",
+            "mm",
+            f"ET {season.start} to {season.end}",
+            {"season": season.id},
+        ),
+        AtomicRaster(
+            out_dir / "scene_count.tif",
+            grid,
+            "uint8",
+            255,
+            block,
+            "scene_count",
+            "1",
+            "valid scenes per pixel",
+            {"season": season.id},
+        ),
+        AtomicRaster(
+            out_dir / "season_qa.tif",
+            grid,
+            "uint8",
+            255,
+            block,
+            "season_qa",
+            "bitmask",
+            "1: filled from neighbouring scenes, 2: no valid scene",
+            {"season": season.id},
+        ),
+    ]
+    try:
+        with rasterio.Env(**GDAL_OPTIONS):
+            store = da.store(
+                [
+                    blocks[0].astype(np.float32),
+                    blocks[1].astype(np.uint8),
+                    blocks[2].astype(np.uint8),
+                ],
+                writers,
+                lock=False,
+                compute=False,
+            )
+            mean_total = da.nanmean(blocks[0])
+            _, mean_total = dask.compute(store, mean_total)
+        outputs = {w.path.name: str(w.commit()) for w in writers}
+    finally:
+        for w in writers:
+            if not w.dataset.closed:
+                w.abort()
+    content = {
+        "season_id": season.id,
+        "status": "complete",
+        "start": season.start,
+        "end": season.end,
+        "fraction": stem,
+        "reference_surface": season.reference,
+        "scenes": [s.id for s in chosen],
+        "scene_dates": [s.acquired_utc.date() for s in chosen],
+        "reference_et_total_mm": float(etr.sum()),
+        "mean_et_season_mm": float(mean_total),
+        "weights_mm": {"lead": weights.lead.tolist(), "trail": weights.trail.tolist()},
+        "outputs": outputs,
+        "caution": "Season totals interpolate between a few scenes; see the README's cautions.",
+    }
+    write_season_manifest(out_dir / "manifest.json", content)
+    return content
+
+
+def _resolve(recipe, value: str) -> Path:
+    from .recipe import resolve_path
+
+    return resolve_path(recipe, value)
