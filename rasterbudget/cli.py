@@ -140,6 +140,7 @@ def run(
 
         outcomes = run_batch(parsed, table, settings, report, force=force)
         failed = [o for o in outcomes if o.status == "failed"]
+        zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
         if parsed.season:
             from .season import run_season
 
@@ -152,6 +153,13 @@ def run(
                         f"(reference ET {done['reference_et_total_mm']:.0f} mm) -> "
                         f"{settings.out_dir / season.id}"
                     )
+        if parsed.zones is not None:
+            from .zones import run_zones
+
+            zone_targets += [(s.id, "et_season") for s in parsed.season]
+            for path in run_zones(parsed, settings, zone_targets):
+                if not quiet:
+                    click.echo(f"zones: {path}")
         if len(outcomes) == 1 and failed:
             raise RasterBudgetError(failed[0].message)
         if failed:
@@ -221,12 +229,18 @@ def demo(out_dir: Path, debug: bool) -> None:
       rasterbudget demo --out tiny_rasters
     """
     try:
-        from .demo import make_daily_weather, make_mixed_grid_inputs, make_tiny_rasters
+        from .demo import (
+            make_daily_weather,
+            make_mixed_grid_inputs,
+            make_tiny_rasters,
+            make_zones,
+        )
 
         out_dir.mkdir(parents=True, exist_ok=True)
         files = make_tiny_rasters(out_dir)
         files += make_mixed_grid_inputs(out_dir)
         files.append(make_daily_weather(out_dir))
+        files.append(make_zones(out_dir))
         click.echo(f"wrote {len(files)} rasters to {out_dir}")
     except RasterBudgetError as err:
         _fail(err, debug)

@@ -693,3 +693,42 @@ def make_daily_weather(out_dir: pathlib.Path, year: int = 2026) -> pathlib.Path:
     tmp.write_text("\n".join(rows) + "\n")
     os.replace(tmp, path)
     return path
+
+
+def make_zones(out_dir: pathlib.Path) -> pathlib.Path:
+    """Invented zones of the demo region: four fields and two sub-basins (GeoJSON, EPSG:32613).
+
+    Field boundaries are rectangles of the demo's field layout; the sub-basins split the scene
+    into a western and an eastern catchment along an invented divide.
+    """
+    import json
+
+    def box(x0, y0, x1, y1):
+        return {
+            "type": "Polygon",
+            "coordinates": [[[x0, y0], [x1, y0], [x1, y1], [x0, y1], [x0, y0]]],
+        }
+
+    x0, y_top = 480000.0, 4430000.0
+    zones = [
+        ("field_A", "field", box(x0 + 2400, y_top - 5700, x0 + 3300, y_top - 4800)),
+        ("field_B", "field", box(x0 + 5100, y_top - 6600, x0 + 6300, y_top - 5400)),
+        ("field_C", "field", box(x0 + 7500, y_top - 8400, x0 + 8700, y_top - 7200)),
+        ("field_D", "field", box(x0 + 3600, y_top - 8700, x0 + 4500, y_top - 7800)),
+        ("basin_west", "sub-basin", box(x0, y_top - 9000, x0 + 6000, y_top)),
+        ("basin_east", "sub-basin", box(x0 + 6000, y_top - 9000, x0 + 12000, y_top)),
+    ]
+    collection = {
+        "type": "FeatureCollection",
+        "name": "Kessendry Basin zones (invented)",
+        "crs": {"type": "name", "properties": {"name": "EPSG:32613"}},
+        "features": [
+            {"type": "Feature", "properties": {"zone_id": z, "kind": kind}, "geometry": geometry}
+            for z, kind, geometry in zones
+        ],
+    }
+    path = out_dir / "zones.geojson"
+    tmp = path.with_name(path.name + ".partial")
+    tmp.write_text(json.dumps(collection, indent=1))
+    os.replace(tmp, path)
+    return path

@@ -300,12 +300,20 @@ class SeasonSettings(_Strict):
         return self
 
 
+class ZoneSettings(_Strict):
+    """``[zones]``: polygons (GeoJSON) for per-zone ET depth and volume."""
+
+    path: str
+    id_property: str = "zone_id"
+
+
 class Recipe(_Strict):
     """A whole recipe: run settings and scenes (defaults already merged into each scene)."""
 
     run: RunSettings = RunSettings()
     scene: list[Scene] = Field(min_length=1)
     season: list[SeasonSettings] = []
+    zones: ZoneSettings | None = None
     path: Path | None = None
 
 

@@ -1,0 +1,196 @@
+"""Per-zone ET depth and volume from a polygon file (GeoJSON).
+
+Zones are burnt onto the output grid block by block (``rasterio.features.rasterize``, pixel
+centres inside a polygon), one zone at a time, so zones may overlap (fields inside
+sub-basins). Cell areas are exact on a projected grid and geodesic on a geographic grid
+(pyproj.Geod on each row's cell polygon). ``volume_m3`` counts the whole zone, its missing pixels
+at the zone's mean depth; ``volume_valid_pixels_m3`` only the valid pixels.
+Volume = depth [mm] / 1000 x cell area [m2]; acre-feet = m3 / 1233.48 (1 acre-foot = 43,560 ft3,
+exact definition).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+from pathlib import Path
+
+import numpy as np
+
+from .errors import RecipeError
+
+CUBIC_METRES_PER_ACRE_FOOT = 1233.48183754752  # 43,560 ft3 x 0.3048^3 m3 per ft3
+
+
+def load_zones(path: Path, id_property: str, grid_crs) -> tuple[list, list, list, list]:
+    """Zone ids, properties, original geometries and geometries in the grid's CRS."""
+    from rasterio.warp import transform_geom
+
+    if not path.is_file():
+        raise RecipeError(f"zone file {path} does not exist; fix zones.path in the recipe.")
+    try:
+        collection = json.loads(path.read_text("utf-8"))
+        features = collection["features"]
+    except (json.JSONDecodeError, KeyError, TypeError) as err:
+        raise RecipeError(f"zone file {path} is not a GeoJSON FeatureCollection ({err}).") from None
+    source_crs = (collection.get("crs", {}) or {}).get("properties", {}).get("name", "EPSG:4326")
+    ids, properties, geometries = [], [], []
+    for k, feature in enumerate(features):
+        props = feature.get("properties") or {}
+        if id_property not in props:
+            raise RecipeError(
+                f"zone file {path}: feature {k} has no property {id_property!r}; set "
+                "zones.id_property to the property holding each zone's id."
+            )
+        ids.append(str(props[id_property]))
+        properties.append(props)
+        geometries.append(transform_geom(source_crs, grid_crs, feature["geometry"]))
+    if len(set(ids)) != len(ids):
+        raise RecipeError(f"zone file {path}: zone ids in {id_property!r} are not unique.")
+    return ids, properties, [f["geometry"] for f in features], geometries
+
+
+def cell_areas(grid, rows: slice) -> np.ndarray:
+    """Area of each pixel of the given rows [m2]: exact when projected, geodesic when geographic."""
+    t = grid.transform
+    if not grid.crs.is_geographic:
+        return np.full(rows.stop - rows.start, abs(t.a * t.e))
+    from pyproj import Geod
+
+    geod = Geod(ellps="WGS84")
+    out = np.empty(rows.stop - rows.start)
+    for k, r in enumerate(range(rows.start, rows.stop)):
+        top, bottom = t.f + r * t.e, t.f + (r + 1) * t.e
+        lons = [t.c, t.c + t.a, t.c + t.a, t.c]
+        lats = [top, top, bottom, bottom]
+        area, _ = geod.polygon_area_perimeter(lons, lats)
+        out[k] = abs(area)
+    return out
+
+
+def zone_block(
+    depth: np.ndarray, masks: list[tuple[int, np.ndarray]], areas: np.ndarray, n_zones: int
+) -> np.ndarray:
+    """Per zone: pixels, valid pixels, zone area [m2], valid area [m2], volume [m3]."""
+    area = np.broadcast_to(areas[:, None], depth.shape)
+    valid = np.isfinite(depth)
+    volume = np.where(valid, depth, 0.0) / 1000.0 * area
+    out = np.zeros((5, n_zones))
+    for k, inside in masks:
+        out[:, k] = (
+            inside.sum(),
+            (inside & valid).sum(),
+            area[inside].sum(),
+            area[inside & valid].sum(),
+            volume[inside].sum(),
+        )
+    return out
+
+
+def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
+    """Sum zone_block over the raster's blocks (one pass, bounded memory)."""
+    import dask
+    import rasterio
+    from rasterio import features, windows
+
+    from .grid import Grid
+
+    with rasterio.open(raster) as src:
+        grid = Grid(src.crs, src.transform, src.width, src.height)
+    boxes = [features.bounds(g) for g in geometries]
+
+    def task(r0, r1, c0, c1):
+        window = windows.Window(c0, r0, c1 - c0, r1 - r0)
+        with rasterio.open(raster) as src:
+            depth = src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
+            transform = src.window_transform(window)
+            left, bottom, right, top = windows.bounds(window, src.transform)
+        masks = []
+        for k, (g, (x0, y0, x1, y1)) in enumerate(zip(geometries, boxes, strict=True)):
+            if x1 < left or x0 > right or y1 < bottom or y0 > top:
+                continue  # this zone misses the block
+            mask = features.rasterize(
+                [(g, 1)], out_shape=depth.shape, transform=transform, fill=0, dtype="uint8"
+            ).astype(bool)
+            if mask.any():
+                masks.append((k, mask))
+        return zone_block(depth, masks, cell_areas(grid, slice(r0, r1)), len(geometries))
+
+    parts = [
+        dask.delayed(task)(r0, min(r0 + chunk, grid.height), c0, min(c0 + chunk, grid.width))
+        for r0 in range(0, grid.height, chunk)
+        for c0 in range(0, grid.width, chunk)
+    ]
+    return np.sum(dask.compute(*parts), axis=0)
+
+
+def zone_rows(ids: list[str], totals: np.ndarray, variable: str) -> list[dict]:
+    rows = []
+    for k, zone in enumerate(ids):
+        pixels, valid, area, valid_area, volume = totals[:, k]
+        depth = volume / valid_area * 1000.0 if valid_area else float("nan")
+        rows.append(
+            {
+                "zone_id": zone,
+                "variable": variable,
+                "pixels": int(pixels),
+                "area_m2": area,
+                "valid_fraction": valid / pixels if pixels else float("nan"),
+                "mean_depth_mm": depth,
+                # volume over the whole zone, with missing pixels at the zone's mean depth
+                "volume_m3": depth / 1000.0 * area if valid_area else float("nan"),
+                "volume_acre_feet": depth / 1000.0 * area / CUBIC_METRES_PER_ACRE_FOOT
+                if valid_area
+                else float("nan"),
+                "volume_valid_pixels_m3": volume,
+            }
+        )
+    return rows
+
+
+def write_zone_tables(
+    out_dir: Path, rows: list[dict], properties: list[dict], geometries: list
+) -> None:
+    from .outputs import write_text_atomic
+    from .summaries import rows_to_csv
+
+    write_text_atomic(out_dir / "zones.csv", rows_to_csv(rows))
+    features = []
+    for row, props, geometry in zip(rows, properties, geometries, strict=True):
+        clean = {
+            k: (None if isinstance(v, float) and not np.isfinite(v) else v) for k, v in row.items()
+        }
+        features.append({"type": "Feature", "geometry": geometry, "properties": {**props, **clean}})
+    buffer = io.StringIO()
+    json.dump({"type": "FeatureCollection", "features": features}, buffer)
+    write_text_atomic(out_dir / "zones.geojson", buffer.getvalue())
+
+
+__all__ = ["csv", "load_zones", "zone_rows", "zone_totals"]
+
+
+def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
+    """Zone tables for each (folder, variable) target that exists under ``settings.out_dir``."""
+    import rasterio
+
+    from .pipeline import effective_chunk_size
+    from .recipe import resolve_path
+
+    spec = recipe.zones
+    written = []
+    for folder, variable in targets:
+        raster = settings.out_dir / folder / f"{variable}.tif"
+        if not raster.is_file():
+            continue
+        with rasterio.open(raster) as src:
+            crs = src.crs
+        ids, props, original, geometries = load_zones(
+            resolve_path(recipe, spec.path), spec.id_property, crs
+        )
+        totals = zone_totals(raster, geometries, effective_chunk_size(settings.chunk_size))
+        write_zone_tables(
+            settings.out_dir / folder, zone_rows(ids, totals, variable), props, original
+        )
+        written.append(settings.out_dir / folder / "zones.csv")
+    return written
