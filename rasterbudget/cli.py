@@ -174,6 +174,65 @@ def run(
 
 
 @main.command()
+@click.argument("current", type=click.Path(dir_okay=False, path_type=Path))
+@click.option(
+    "--previous",
+    type=click.Path(dir_okay=False, path_type=Path),
+    help="Raster to compare with: writes difference and percent_change.",
+)
+@click.option(
+    "--baseline",
+    type=click.Path(dir_okay=False, path_type=Path),
+    multiple=True,
+    help="A baseline raster (repeat, at least two): writes standardized_anomaly and "
+    "drought_category with the share of area in each category.",
+)
+@click.option(
+    "--out",
+    "out_dir",
+    type=click.Path(file_okay=False, path_type=Path),
+    required=True,
+    help="Output folder.",
+)
+@click.option(
+    "--chunk-size",
+    type=click.IntRange(64, 16384),
+    default=1024,
+    show_default=True,
+    help="Edge of the blocks processed at once.",
+)
+@debug_option
+def compare(
+    current: Path,
+    previous: Path | None,
+    baseline: tuple[Path, ...],
+    out_dir: Path,
+    chunk_size: int,
+    debug: bool,
+) -> None:
+    """Compare CURRENT (e.g. a season's et_season.tif) with another period or a baseline.
+
+    All rasters must be on one grid (outputs of recipes with the same target grid).
+
+    \b
+    Examples:
+      rasterbudget compare summer_2026/et_season.tif --previous summer_2025/et_season.tif \\
+          --out change
+      rasterbudget compare summer_2026/et_season.tif --baseline y2021.tif \\
+          --baseline y2022.tif --baseline y2023.tif --out anomaly
+    """
+    try:
+        from .compare import run_compare
+
+        summary = run_compare(current, out_dir, previous, list(baseline), chunk_size)
+        click.echo(f"wrote {', '.join(summary['outputs'])} to {out_dir}")
+        for row in summary.get("categories", []):
+            click.echo(f"  {row['category']:15s} {row['share_of_valid_area']:7.1%}")
+    except RasterBudgetError as err:
+        _fail(err, debug)
+
+
+@main.command()
 @click.argument("recipe", type=click.Path(dir_okay=False, path_type=Path))
 @click.option(
     "--chunk-size",
