@@ -160,6 +160,16 @@ def run(
             for path in run_zones(parsed, settings, zone_targets):
                 if not quiet:
                     click.echo(f"zones: {path}")
+        if settings.quicklook:
+            from .report import write_report
+
+            report_path = write_report(
+                settings.out_dir,
+                [o.scene_id for o in outcomes if o.status != "failed"],
+                [s.id for s in parsed.season],
+            )
+            if not quiet:
+                click.echo(f"report: {report_path}")
         if len(outcomes) == 1 and failed:
             raise RasterBudgetError(failed[0].message)
         if failed:

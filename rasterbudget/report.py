@@ -1,0 +1,223 @@
+"""One self-contained HTML report per run: maps, histograms, energy partition, anchors or edges,
+seasons, zone tables, QA statistics and the cautions. Images are embedded (base64 PNG)."""
+
+from __future__ import annotations
+
+import base64
+import csv
+import html
+import io
+import json
+from pathlib import Path
+
+import numpy as np
+
+from .outputs import write_text_atomic
+from .pipeline import CAUTION
+
+
+def _png(fig) -> str:
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=80)
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)
+    return "data:image/png;base64," + base64.b64encode(buffer.getvalue()).decode()
+
+
+def _img(src: str, alt: str) -> str:
+    return f'<img src="{src}" alt="{html.escape(alt)}">'
+
+
+def _file_img(path: Path, alt: str) -> str:
+    data = base64.b64encode(path.read_bytes()).decode()
+    return _img(f"data:image/png;base64,{data}", alt)
+
+
+def _table(rows: list[dict], columns: list[str]) -> str:
+    head = "".join(f"<th>{html.escape(c)}</th>" for c in columns)
+    body = []
+    for row in rows:
+        cells = []
+        for c in columns:
+            value = row.get(c, "")
+            try:
+                value = f"{float(value):.4g}"
+            except (TypeError, ValueError):
+                value = html.escape(str(value))
+            cells.append(f"<td>{value}</td>")
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    return f"<table><tr>{head}</tr>{''.join(body)}</table>"
+
+
+def _read_small(path: Path, side: int = 500) -> tuple[np.ndarray, object]:
+    import rasterio
+
+    with rasterio.open(path) as src:
+        factor = max(1, int(np.ceil(max(src.width, src.height) / side)))
+        data = (
+            src.read(
+                1,
+                out_shape=(max(1, src.height // factor), max(1, src.width // factor)),
+                masked=True,
+            )
+            .filled(np.nan)
+            .astype(float)
+        )
+        return data, (src.bounds, src.transform)
+
+
+def _scene_section(folder: Path) -> str:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    manifest = json.loads((folder / "manifest.json").read_text())
+    parts = [f"<h2>Scene {html.escape(manifest['scene_id'])}</h2>"]
+    if (folder / "quicklook.png").is_file():
+        parts.append(_file_img(folder / "quicklook.png", "quick-look maps"))
+    # histograms
+    fig, axes = plt.subplots(1, 3, figsize=(12, 3), constrained_layout=True)
+    for ax, name in zip(
+        axes, ("et_daily", "evaporative_fraction", "sensible_heat_flux"), strict=True
+    ):
+        data, _ = _read_small(folder / f"{name}.tif")
+        ax.hist(data[np.isfinite(data)], bins=60, color="#3b6e8f")
+        ax.set_title(name.replace("_", " "))
+    parts.append(_img(_png(fig), "histograms"))
+    # per-class energy partition
+    classes = list(csv.DictReader((folder / "classes.csv").open()))
+    fig, ax = plt.subplots(figsize=(8, 3), constrained_layout=True)
+    names = [c["name"] for c in classes]
+    le = [float(c["share_to_latent_heat"] or 0) for c in classes]
+    h = [float(c["share_to_sensible_heat"] or 0) for c in classes]
+    ax.bar(names, le, color="#2f7f5f", label="to LE")
+    ax.bar(names, h, bottom=le, color="#c0603a", label="to H")
+    ax.set_ylabel("share of Rn - G")
+    ax.tick_params(axis="x", rotation=30)
+    ax.legend()
+    parts.append("<h3>How available energy splits per land-cover class</h3>")
+    parts.append(_img(_png(fig), "energy partition"))
+    # anchors on the map, or the edges scatter
+    if manifest.get("sensible_heat_method") == "anchors":
+        data, (bounds, _) = _read_small(folder / "et_daily.tif")
+        fig, ax = plt.subplots(figsize=(6, 4.5), constrained_layout=True)
+        image = ax.imshow(
+            data, cmap="YlGnBu", extent=(bounds.left, bounds.right, bounds.bottom, bounds.top)
+        )
+        for role, color in (("cold", "royalblue"), ("hot", "firebrick")):
+            a = manifest["anchors"][role]
+            ax.plot(
+                a["x"],
+                a["y"],
+                "o",
+                mfc="none",
+                mec=color,
+                ms=12,
+                mew=2,
+                label=f"{role} anchor {a['surface_temperature']:.1f} K",
+            )
+        ax.legend(loc="lower right")
+        fig.colorbar(image, ax=ax, label="mm d-1")
+        parts.append("<h3>Daily ET with the anchors</h3>" + _img(_png(fig), "anchors"))
+    elif (folder / "edges.png").is_file():
+        parts.append("<h3>Temperature-albedo edges</h3>" + _file_img(folder / "edges.png", "edges"))
+    parts.append(
+        "<h3>Per class</h3>"
+        + _table(
+            classes,
+            [
+                "name",
+                "valid_pixels",
+                "net_radiation_mean",
+                "ground_heat_flux_mean",
+                "sensible_heat_flux_mean",
+                "latent_heat_flux_mean",
+                "et_daily_mean",
+                "et_daily_p10",
+                "et_daily_p90",
+            ],
+        )
+    )
+    qa = [
+        {"bit": k, "name": v["name"], "pixels": v["pixels"]}
+        for k, v in manifest["qa_bits"].items()
+        if v["pixels"]
+    ]
+    parts.append("<h3>QA flags set</h3>" + _table(qa, ["bit", "name", "pixels"]))
+    if (folder / "zones.csv").is_file():
+        zones = list(csv.DictReader((folder / "zones.csv").open()))
+        parts.append(
+            "<h3>Zones (daily ET)</h3>"
+            + _table(zones, ["zone_id", "area_m2", "valid_fraction", "mean_depth_mm", "volume_m3"])
+        )
+    return "\n".join(parts)
+
+
+def _season_section(folder: Path) -> str:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    manifest = json.loads((folder / "manifest.json").read_text())
+    data, (bounds, _) = _read_small(folder / "et_season.tif")
+    fig, ax = plt.subplots(figsize=(6, 4.5), constrained_layout=True)
+    image = ax.imshow(
+        data, cmap="YlGnBu", extent=(bounds.left, bounds.right, bounds.bottom, bounds.top)
+    )
+    fig.colorbar(image, ax=ax, label="mm")
+    parts = [
+        f"<h2>Season {html.escape(manifest['season_id'])} ({manifest['start']} to "
+        f"{manifest['end']})</h2>",
+        f"<p>Scenes: {', '.join(manifest['scenes'])}; reference ET "
+        f"{manifest['reference_et_total_mm']:.0f} mm; mean ET "
+        f"{manifest['mean_et_season_mm']:.0f} mm.</p>",
+        _img(_png(fig), "season ET"),
+    ]
+    if (folder / "zones.csv").is_file():
+        zones = list(csv.DictReader((folder / "zones.csv").open()))
+        parts.append(
+            "<h3>Zones</h3>"
+            + _table(
+                zones,
+                [
+                    "zone_id",
+                    "area_m2",
+                    "valid_fraction",
+                    "mean_depth_mm",
+                    "volume_m3",
+                    "volume_acre_feet",
+                ],
+            )
+        )
+    return "\n".join(parts)
+
+
+STYLE = """body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}
+img{max-width:100%;display:block;margin:0.5em 0}
+table{border-collapse:collapse;font-size:0.85em;margin:0.5em 0}
+td,th{border:1px solid #ccc;padding:2px 6px;text-align:right}
+.caution{background:#fff4e0;border-left:4px solid #d08020;padding:0.6em 1em}"""
+
+
+def write_report(out_dir: Path, scene_ids: list[str], season_ids: list[str]) -> Path:
+    """Write ``out_dir/report.html`` for the given (complete) scene and season folders."""
+    sections = [
+        _scene_section(out_dir / s) for s in scene_ids if (out_dir / s / "manifest.json").is_file()
+    ]
+    sections += [
+        _season_section(out_dir / s)
+        for s in season_ids
+        if (out_dir / s / "manifest.json").is_file()
+    ]
+    page = (
+        "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
+        f"<title>rasterbudget report</title><style>{STYLE}</style></head><body>"
+        "<h1>rasterbudget report</h1>"
+        f"<p class='caution'><b>Caution.</b> {html.escape(CAUTION)}</p>"
+        + "\n".join(sections)
+        + "</body></html>"
+    )
+    return write_text_atomic(out_dir / "report.html", page)

@@ -1,0 +1,88 @@
+"""The HTML report: self-contained, every section present, renders in headless Chromium."""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+from html.parser import HTMLParser
+
+import pytest
+from click.testing import CliRunner
+
+from rasterbudget.cli import main
+
+from .conftest import ROOT
+
+
+class _Collector(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.sources, self.headings, self._in_heading = [], [], False
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag in ("img", "script", "link"):
+            self.sources.append(attrs.get("src") or attrs.get("href") or "")
+        self._in_heading = tag in ("h1", "h2", "h3")
+
+    def handle_data(self, data):
+        if self._in_heading:
+            self.headings.append(data.strip())
+            self._in_heading = False
+
+
+@pytest.fixture(scope="module")
+def report(tmp_path_factory):
+    out = tmp_path_factory.mktemp("report") / "out"
+    result = CliRunner().invoke(
+        main, ["run", str(ROOT / "workflows" / "demo_season.toml"), "--out", str(out), "--quiet"]
+    )
+    assert result.exit_code == 0, result.output
+    return out / "report.html"
+
+
+def test_report_is_self_contained_with_every_section(report):
+    text = report.read_text()
+    parser = _Collector()
+    parser.feed(text)
+    assert parser.sources and all(s.startswith("data:image/png;base64,") for s in parser.sources)
+    headings = " | ".join(parser.headings)
+    for title in (
+        "Scene kessendry_20260614",
+        "Scene kessendry_20260823",
+        "Season kessendry_summer_2026",
+        "How available energy splits",
+        "Daily ET with the anchors",
+        "QA flags set",
+        "Zones",
+    ):
+        assert title in headings, title
+    assert "do not replace local regulations" in text.replace("They do not", "do not")
+    assert not re.search(r"(src|href)=\"https?:", text)
+
+
+@pytest.mark.skipif(shutil.which("chromium") is None, reason="headless Chromium not installed")
+def test_report_renders_in_headless_chromium(report, tmp_path):
+    shot = tmp_path / "report.png"
+    subprocess.run(
+        [
+            "chromium",
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            f"--user-data-dir={tmp_path / 'profile'}",
+            "--window-size=1200,2000",
+            f"--screenshot={shot}",
+            report.as_uri(),
+        ],
+        check=True,
+        timeout=120,
+        capture_output=True,
+    )
+    assert shot.stat().st_size > 50_000  # a page of maps and charts, not a blank one
