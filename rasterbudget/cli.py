@@ -21,6 +21,16 @@ def _fail(err: Exception, debug: bool) -> None:
     sys.exit(2)
 
 
+def _recipe_and_classes(path: Path):
+    """The validated recipe and the class table it names."""
+    from .landcover import load_class_table
+    from .recipe import load_recipe, resolve_path
+
+    parsed = load_recipe(path)
+    name = parsed.run.class_table
+    return parsed, load_class_table(None if name == "builtin" else resolve_path(parsed, name))
+
+
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(package_name="rasterbudget")
 def main() -> None:
@@ -92,16 +102,10 @@ def run(
       rasterbudget run my_region.toml --out results --chunk-size 512
     """
     try:
-        from .landcover import load_class_table
         from .pipeline import RunSettings
-        from .recipe import load_recipe, resolve_path
+        from .recipe import resolve_path
 
-        parsed = load_recipe(recipe)
-        table = load_class_table(
-            None
-            if parsed.run.class_table == "builtin"
-            else resolve_path(parsed, parsed.run.class_table)
-        )
+        parsed, table = _recipe_and_classes(recipe)
         settings = RunSettings(
             out_dir=out_dir if out_dir is not None else resolve_path(parsed, parsed.run.out),
             chunk_size=chunk_size or parsed.run.chunk_size,
@@ -265,15 +269,8 @@ def inspect(recipe: Path, chunk_size: int | None, debug: bool) -> None:
     """
     try:
         from .inspection import inspect_recipe
-        from .landcover import load_class_table
-        from .recipe import load_recipe, resolve_path
 
-        parsed = load_recipe(recipe)
-        table = load_class_table(
-            None
-            if parsed.run.class_table == "builtin"
-            else resolve_path(parsed, parsed.run.class_table)
-        )
+        parsed, table = _recipe_and_classes(recipe)
         for line in inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size):
             click.echo(line)
     except RasterBudgetError as err:
