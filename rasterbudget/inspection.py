@@ -15,9 +15,10 @@ import numpy as np
 import rasterio
 from rasterio.transform import Affine
 
-from .errors import AnchorError, RasterBudgetError
+from .errors import AnchorError
 from .grid import (
     GDAL_OPTIONS,
+    WEATHER_ROLES,
     Grid,
     check_input,
     grid_from_settings,
@@ -156,8 +157,8 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         masked=masked,
         weather={
             k: data[k]
-            for k in ("air_temperature_c", "relative_humidity_pct", "shortwave_in_w_m2")
-            if k in data
+            for k in WEATHER_ROLES
+            if k in data and k != "wind_speed_m_s"  # wind enters H, not the surface state
         },
     )
     codes = land_cover_codes(data["land_cover"])
@@ -203,6 +204,3 @@ def inspect_recipe(path: Path, table: ClassTable, recipe: Recipe, chunk_size: in
     for scene in recipe.scene:
         out += inspect_scene(recipe, scene, table, chunk_size)
     return out
-
-
-__all__ = ["RasterBudgetError", "inspect_recipe", "inspect_scene"]

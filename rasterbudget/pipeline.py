@@ -755,13 +755,16 @@ def _combine_class(a, b):
     moments[..., :3] += b[1][..., :3]
     moments[..., 3] = np.minimum(a[1][..., 3], b[1][..., 3])
     moments[..., 4] = np.maximum(a[1][..., 4], b[1][..., 4])
-    return hists, moments
+    return hists, moments, a[2] + b[2]
 
 
 def _class_block(block: np.ndarray, variables: tuple[str, ...], class_codes: list[int]):
+    """Per-class histograms and moments of one pass-2 block, and its pixels per QA bit."""
     values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES if name in variables}
     codes = block[variables.index("land_cover_code")].astype(np.intp)
-    return class_histograms(values, codes, class_codes)
+    qa = block[variables.index(QA_OUTPUT)].astype(np.uint16)
+    qa_counts = np.array([np.count_nonzero(qa & np.uint16(b)) for b in QA], dtype=np.int64)
+    return (*class_histograms(values, codes, class_codes), qa_counts)
 
 
 def versions() -> dict[str, str]:
@@ -1122,7 +1125,7 @@ def run_scene(
         ]
         class_total = _tree_reduce(class_parts, _combine_class)
         with TaskProgress(f"{scene.id} pass 2", settings.progress):
-            _, tile_stats, (class_hist, class_moments) = dask.compute(
+            _, tile_stats, (class_hist, class_moments, qa_bit_counts) = dask.compute(
                 store, tile_stats, class_total
             )
         outputs = {w.path.stem: w.commit() for w in writers}
@@ -1197,7 +1200,7 @@ def run_scene(
     timings["summaries_s"] = time.perf_counter() - t0
     timings["total_s"] = time.perf_counter() - started
 
-    qa_counts = _qa_counts(outputs[QA_OUTPUT])
+    qa_counts = {b.name: int(n) for b, n in zip(QA, qa_bit_counts, strict=True)}
     manifest = {
         "scene_id": scene.id,
         "status": "complete",
@@ -1268,19 +1271,6 @@ def _map_xy(grid: Grid, row: float, col: float) -> tuple[float, float]:
     """Map coordinates of a (fractional) pixel position on a north-up grid."""
     t = grid.transform
     return t.c + col * t.a, t.f + row * t.e
-
-
-def _qa_counts(path: Path) -> dict[str, int]:
-    """Pixels per QA bit, read back from the written QA raster block by block."""
-    import rasterio
-
-    counts = dict.fromkeys((b.name for b in QA), 0)
-    with rasterio.open(path) as src:
-        for _, window in src.block_windows(1):
-            data = src.read(1, window=window)
-            for b in QA:
-                counts[b.name] += int(np.count_nonzero(data & np.uint16(b)))
-    return counts
 
 
 def _json_default(value):

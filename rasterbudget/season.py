@@ -162,10 +162,6 @@ def grid_check(paths: list[Path]) -> None:
                 )
 
 
-def nan_to_none(x: float) -> float | None:
-    return None if x is None or (isinstance(x, float) and math.isnan(x)) else x
-
-
 def run_season(recipe, season, settings) -> dict:
     """Compute one season's totals from its scenes' outputs in one chunked pass."""
     import dask

@@ -11,7 +11,6 @@ exact definition).
 
 from __future__ import annotations
 
-import csv
 import io
 import json
 from pathlib import Path
@@ -165,9 +164,6 @@ def write_zone_tables(
     buffer = io.StringIO()
     json.dump({"type": "FeatureCollection", "features": features}, buffer)
     write_text_atomic(out_dir / "zones.geojson", buffer.getvalue())
-
-
-__all__ = ["csv", "load_zones", "zone_rows", "zone_totals"]
 
 
 def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:

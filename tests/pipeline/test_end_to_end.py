@@ -169,3 +169,12 @@ def test_manifest_says_how_each_number_was_made(demo_run):
     cold = manifest["anchors"]["cold"]
     assert {"x", "y", "row", "col", "surface_temperature", "percentile"} <= set(cold)
     assert manifest["status"] == "complete"
+
+
+@pytest.mark.parametrize("scene", SCENES)
+def test_manifest_qa_counts_match_the_written_qa_raster(demo_run, scene):
+    manifest = json.loads((demo_run / scene / "manifest.json").read_text())
+    qa = read(demo_run / scene / "qa_flags.tif")[0]
+    for bit in QA:
+        entry = manifest["qa_bits"][f"bit {bit.bit_length() - 1}"]
+        assert entry["pixels"] == int(np.count_nonzero(qa & np.uint16(bit))), bit.name
