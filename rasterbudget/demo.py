@@ -121,6 +121,20 @@ _SPREAD: dict[str, tuple[float, float, float, float, float]] = {
 }
 _LOOKS = {name: _ClassLook(*_TYPICAL[name], *_SPREAD[name]) for name in _TYPICAL}
 
+# Drought response (series only): NDVI loss and surface warming [K] in a dry year (drought = 1).
+# Irrigated fields lose little (curtailed deliveries); rainfed crops and rangeland lose most.
+_DROUGHT_RESPONSE: dict[str, tuple[float, float]] = {
+    "irrigated_crop": (0.03, 1.5),
+    "rainfed_crop": (0.15, 8.0),
+    "grassland": (0.12, 7.0),
+    "shrubland": (0.06, 6.0),
+    "bare_soil": (0.0, 1.0),
+    "open_water": (0.0, 0.3),
+    "built_up": (0.0, 1.0),
+    "forest": (0.03, 2.5),
+    "snow_ice": (0.0, 0.0),
+}
+
 _FALLOW_ALBEDO = (0.24, 0.25)  # fallow fields are darker than the dry wash and the rock [-]
 _FALLOW_WARMING = 40.0  # [K per unit albedo] darker fallow soil runs hotter than bright sand
 _ROAD_EFFECT = (-0.01, -0.05, 2.0)  # road pixels in town: albedo, NDVI, LST offsets
@@ -230,6 +244,8 @@ class _Layout:
     outliers: np.ndarray  # bool, planted out-of-range albedo pixels
     albedo_gap: np.ndarray  # bool, missing early-summer albedo
     lst_gap: np.ndarray  # bool, missing late-summer surface temperature
+    snow_lines: tuple[np.ndarray, np.ndarray]  # [m] snow line fields on the two dates
+    melt_to_rock: np.ndarray  # bool, melted snow becomes rock (else alpine grassland)
 
 
 def _layout(
@@ -370,6 +386,8 @@ def _layout(
         outliers=outliers,
         albedo_gap=albedo_gap,
         lst_gap=lst_gap,
+        snow_lines=(snow_line_june, snow_line_august),
+        melt_to_rock=melt_to_rock,
     )
     return layout, elevation
 
@@ -377,17 +395,28 @@ def _layout(
 # --------------------------------------------------------------------------- surface values
 
 
+def _between(pair: tuple[float, float], phase: float) -> float:
+    """Value at season phase ``phase`` (0 early summer, 1 late summer; exact at both ends)."""
+    return (1.0 - phase) * pair[0] + phase * pair[1]
+
+
 def _scene_values(
     rng: np.random.Generator,
     layout: _Layout,
     elevation: np.ndarray,
     classes: dict[str, _ClassRow],
-    date_index: int,
+    lc: np.ndarray,
+    phase: float,
     field_state: np.ndarray,
     illumination: np.ndarray,
+    drought: float = 0.0,
 ) -> dict[str, np.ndarray]:
-    """Albedo, NDVI and LST of one date, consistent with land cover and terrain."""
-    lc = layout.codes[date_index]
+    """Albedo, NDVI and LST of one date, consistent with land cover and terrain.
+
+    ``phase`` places the date in the season (0 early, 1 late summer; values between and a little
+    beyond interpolate the class looks linearly); ``drought`` (0 normal, 1 a dry year) lowers
+    NDVI and warms the surface by each class's ``_DROUGHT_RESPONSE``.
+    """
     # Latent fields: "dry" (less water, lower NDVI, hotter) and "dark" (lower albedo, hotter).
     dry = _unit(
         0.55 * _smooth(rng, 12)
@@ -405,23 +434,28 @@ def _scene_values(
     above_floor = elevation - _VALLEY_ELEVATION
     for name, look in _LOOKS.items():
         mask = lc == classes[name].code
-        base_albedo = np.full(lc.shape, look.albedo[date_index])
-        base_lst = np.full(lc.shape, look.lst[date_index])
+        typical_albedo = _between(look.albedo, phase)
+        base_albedo = np.full(lc.shape, typical_albedo)
+        base_lst = np.full(lc.shape, _between(look.lst, phase))
         if name == "bare_soil":
-            base_albedo[layout.fallow] = _FALLOW_ALBEDO[date_index]
-            base_lst += _FALLOW_WARMING * (look.albedo[date_index] - base_albedo)
+            base_albedo[layout.fallow] = _between(_FALLOW_ALBEDO, phase)
+            base_lst += _FALLOW_WARMING * (typical_albedo - base_albedo)
+        ndvi_loss, warming = _DROUGHT_RESPONSE[name]
         albedo[mask] = base_albedo[mask] - look.albedo_sd * dark[mask] + albedo_noise[mask]
-        ndvi[mask] = look.ndvi[date_index] - look.ndvi_sd * dry[mask] + ndvi_noise[mask]
+        ndvi[mask] = (
+            _between(look.ndvi, phase) - look.ndvi_sd * dry[mask] + ndvi_noise[mask]
+        ) - ndvi_loss * drought
         lst[mask] = (
             base_lst[mask]
             + look.lst_dry * dry[mask]
             + look.lst_dark * dark[mask]
             + look.slope_gain * illumination[mask]
             + lst_noise[mask]
-        )
+        ) + warming * drought
         if name == "snow_ice":
             # Lapse from 100 m above the snow line, then a smooth cap just above melting point.
-            raw = lst[mask] - _LAPSE_RATE * (elevation[mask] - _SNOW_LINE[date_index] - 100.0)
+            snow_line = _between(_SNOW_LINE, phase)
+            raw = lst[mask] - _LAPSE_RATE * (elevation[mask] - snow_line - 100.0)
             width = 0.5
             lst[mask] = _SNOW_CAP - width * np.logaddexp(0.0, (_SNOW_CAP - raw) / width)
         else:
@@ -442,10 +476,6 @@ def _scene_values(
     albedo = np.round(albedo, 3).astype(np.float32)
     ndvi = np.round(ndvi, 3).astype(np.float32)
     lst = np.round(lst, 2).astype(np.float32)
-    if date_index == 0:
-        albedo[layout.albedo_gap] = np.nan
-    else:
-        lst[layout.lst_gap] = np.nan
     return {"albedo": albedo, "surface_temperature": lst, "ndvi": ndvi}
 
 
@@ -460,21 +490,23 @@ def _write_geotiff(
     description: str,
     units: str,
     tags: dict[str, str],
+    transform: Affine = _TRANSFORM,
+    block: int = 256,
 ) -> None:
     """Write one band to a temporary file in the target folder, then rename it into place."""
     is_float = np.issubdtype(array.dtype, np.floating)
     profile = {
         "driver": "GTiff",
-        "height": _ROWS,
-        "width": _COLS,
+        "height": array.shape[0],
+        "width": array.shape[1],
         "count": 1,
         "dtype": array.dtype.name,
         "crs": CRS.from_epsg(_EPSG),
-        "transform": _TRANSFORM,
+        "transform": transform,
         "nodata": nodata,
         "tiled": True,
-        "blockxsize": 256,
-        "blockysize": 256,
+        "blockxsize": block,
+        "blockysize": block,
         "compress": "deflate",
         "predictor": 3 if is_float else 2,
     }
@@ -493,7 +525,28 @@ def _write_geotiff(
         raise
 
 
-def make_tiny_rasters(out_dir: pathlib.Path, seed: int = 20260612) -> list[pathlib.Path]:
+DEMO_SEED = 20260612
+"""Seed of the demo region (terrain, land cover, fields)."""
+
+
+def _region(
+    seed: int,
+) -> tuple[dict[str, _ClassRow], np.random.Generator, _Layout, np.ndarray, tuple[float, float]]:
+    """Classes, the generator after the layout draws, layout, elevation [m] and centre lon/lat."""
+    classes = _load_classes()
+    rng = np.random.default_rng(seed)
+    elevation = _elevation(rng)
+    layout, elevation = _layout(rng, elevation, classes)
+    elevation = np.round(elevation, 1).astype(np.float32)
+    centre_x = _ORIGIN_X + _PIXEL_SIZE * _COLS / 2
+    centre_y = _ORIGIN_Y - _PIXEL_SIZE * _ROWS / 2
+    lons, lats = _transform_coords(
+        CRS.from_epsg(_EPSG), CRS.from_epsg(4326), [centre_x], [centre_y]
+    )
+    return classes, rng, layout, elevation, (float(lons[0]), float(lats[0]))
+
+
+def make_tiny_rasters(out_dir: pathlib.Path, seed: int = DEMO_SEED) -> list[pathlib.Path]:
     """Write the demo rasters of the invented Kessendry Basin into ``out_dir``.
 
     Parameters
@@ -519,18 +572,7 @@ def make_tiny_rasters(out_dir: pathlib.Path, seed: int = 20260612) -> list[pathl
     """
     out_dir = pathlib.Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    classes = _load_classes()
-    rng = np.random.default_rng(seed)
-
-    elevation = _elevation(rng)
-    layout, elevation = _layout(rng, elevation, classes)
-    elevation = np.round(elevation, 1).astype(np.float32)
-
-    centre_x = _ORIGIN_X + _PIXEL_SIZE * _COLS / 2
-    centre_y = _ORIGIN_Y - _PIXEL_SIZE * _ROWS / 2
-    lons, lats = _transform_coords(
-        CRS.from_epsg(_EPSG), CRS.from_epsg(4326), [centre_x], [centre_y]
-    )
+    classes, rng, layout, elevation, (lon, lat) = _region(seed)
 
     # Each field keeps part of its water state from June to August.
     state_june = np.concatenate([[0.0], rng.standard_normal(layout.n_fields)])
@@ -558,9 +600,15 @@ def make_tiny_rasters(out_dir: pathlib.Path, seed: int = 20260612) -> list[pathl
 
     units = {"albedo": "1", "surface_temperature": "K", "ndvi": "1"}
     for index, (date, state) in enumerate(zip(DEMO_DATES, (state_june, state_august), strict=True)):
-        sun = _sun_vector(date, float(lats[0]), float(lons[0]))
+        sun = _sun_vector(date, lat, lon)
         illumination = _illumination(elevation.astype(float), sun)
-        values = _scene_values(rng, layout, elevation, classes, index, state, illumination)
+        values = _scene_values(
+            rng, layout, elevation, classes, layout.codes[index], float(index), state, illumination
+        )
+        if index == 0:
+            values["albedo"][layout.albedo_gap] = np.nan
+        else:
+            values["surface_temperature"][layout.lst_gap] = np.nan
         stamp = date.replace("-", "")
         for name, array in values.items():
             emit(
@@ -665,34 +713,286 @@ def make_mixed_grid_inputs(tiny_dir: pathlib.Path) -> list[pathlib.Path]:
     return written
 
 
-def make_daily_weather(out_dir: pathlib.Path, year: int = 2026) -> pathlib.Path:
-    """An invented daily weather table for the demo station, 1 May to 30 September.
+def _daily_weather_rows(year: int, drought: float = 0.0) -> list[dict[str, float | str]]:
+    """Invented daily weather of the demo station, 1 May to 30 September of ``year``.
 
-    Columns: date, tmax_c, tmin_c, rh_max_pct, rh_min_pct, wind_speed_m_s (at 2 m) and
-    shortwave_mj_m2: a smooth seasonal cycle plus seeded day-to-day noise and a few cloudy days.
+    A smooth seasonal cycle plus seeded day-to-day noise and a few cloudy days; ``drought`` (0
+    normal, 1 a dry year) makes days hotter, drier, sunnier and windier.
     """
     rng = np.random.default_rng(year)
     start, end = _dt.date(year, 5, 1), _dt.date(year, 9, 30)
-    rows = ["date,tmax_c,tmin_c,rh_max_pct,rh_min_pct,wind_speed_m_s,shortwave_mj_m2"]
+    rows: list[dict[str, float | str]] = []
     day = start
     while day <= end:
         phase = math.cos(2 * math.pi * (day.timetuple().tm_yday - 200) / 365.0)
-        cloudy = rng.random() < 0.12
-        tmax = 24.0 + 8.0 * phase + rng.normal(0, 1.5) - (4.0 if cloudy else 0.0)
-        tmin = tmax - 17.0 + rng.normal(0, 1.5) + (4.0 if cloudy else 0.0)
-        rh_max = min(98.0, 60.0 + rng.normal(0, 6) + (20.0 if cloudy else 0.0))
-        rh_min = max(8.0, min(rh_max - 10.0, 18.0 + rng.normal(0, 4) + (25 if cloudy else 0)))
+        # Satellite scenes see clear skies: the series' scene dates are never cloudy.
+        cloudy = rng.random() < 0.12 * (1.0 - 0.5 * drought) and day.strftime("%m-%d") not in (
+            SERIES_DAYS if year in SERIES_YEARS else ()
+        )
+        tmax = 24.0 + 8.0 * phase + rng.normal(0, 1.5) - (4.0 if cloudy else 0.0) + 1.0 * drought
+        tmin = tmax - 17.0 + rng.normal(0, 1.5) + (4.0 if cloudy else 0.0) - 1.0 * drought
+        rh_max = min(98.0, 60.0 + rng.normal(0, 6) + (20.0 if cloudy else 0.0) - 3.0 * drought)
+        rh_min = max(
+            8.0,
+            min(rh_max - 10.0, 18.0 + rng.normal(0, 4) + (25 if cloudy else 0) - 2.0 * drought),
+        )
         wind = max(0.6, 2.6 + rng.normal(0, 0.7))
         rs = (30.5 * (0.82 + 0.18 * phase)) * (0.45 if cloudy else 1.0) + rng.normal(0, 0.8)
         rows.append(
-            f"{day.isoformat()},{tmax:.1f},{tmin:.1f},{rh_max:.0f},{rh_min:.0f},{wind:.1f},{rs:.1f}"
+            {
+                "date": day.isoformat(),
+                "tmax_c": round(tmax, 1),
+                "tmin_c": round(tmin, 1),
+                "rh_max_pct": round(rh_max),
+                "rh_min_pct": round(rh_min),
+                "wind_speed_m_s": round(wind, 1),
+                "shortwave_mj_m2": round(rs, 1),
+            }
         )
         day += _dt.timedelta(days=1)
+    return rows
+
+
+def make_daily_weather(out_dir: pathlib.Path, year: int = 2026) -> pathlib.Path:
+    """Write ``daily_weather_<year>.csv``: the invented station's daily weather, May-September.
+
+    Columns: date, tmax_c, tmin_c, rh_max_pct, rh_min_pct, wind_speed_m_s (at 2 m) and
+    shortwave_mj_m2. Years of the season series (``SERIES_YEARS``) carry their drought level.
+    """
+    rows = _daily_weather_rows(year, SERIES_YEARS.get(year, 0.0))
+    header = "date,tmax_c,tmin_c,rh_max_pct,rh_min_pct,wind_speed_m_s,shortwave_mj_m2"
+    lines = [header]
+    for r in rows:
+        lines.append(
+            f"{r['date']},{r['tmax_c']:.1f},{r['tmin_c']:.1f},{r['rh_max_pct']:.0f},"
+            f"{r['rh_min_pct']:.0f},{r['wind_speed_m_s']:.1f},{r['shortwave_mj_m2']:.1f}"
+        )
     path = out_dir / f"daily_weather_{year}.csv"
     tmp = path.with_name(path.name + ".partial")
-    tmp.write_text("\n".join(rows) + "\n")
+    tmp.write_text("\n".join(lines) + "\n")
     os.replace(tmp, path)
     return path
+
+
+# --------------------------------------------------------------------------- season series
+
+SERIES_YEARS: dict[int, float] = {2022: 0.15, 2023: -0.25, 2024: 0.3, 2025: 1.0, 2026: 0.0}
+"""Years of the season series and their drought level (0 normal, 1 the dry year 2025)."""
+
+SERIES_DRY_YEAR = 2025
+
+SERIES_DAYS = ("06-06", "06-30", "07-24", "08-17", "09-10")
+"""Month-day of the five series scenes, the same in every year (a 24-day revisit)."""
+
+SERIES_SEASON = ("06-01", "09-15")
+"""First and last day (month-day) of each year's season total."""
+
+SERIES_FACTOR = 3
+"""The series is on a 90 m grid: 3 x 3 blocks of the 30 m region, as from a thermal sensor."""
+
+# Clouds masked out of some series scenes (NaN in every band): date -> (row, col, radius) at 30 m.
+_SERIES_CLOUDS: dict[str, tuple[float, float, float]] = {
+    "2025-06-30": (150.0, 200.0, 40.0),
+    "2026-07-24": (230.0, 120.0, 35.0),
+    "2023-08-17": (120.0, 300.0, 30.0),
+}
+
+
+def _phase(date: _dt.date) -> float:
+    """Season phase of a date: 0 on 14 June, 1 on 23 August, linear in day of year."""
+    june, august = (_dt.date.fromisoformat(d).timetuple().tm_yday for d in DEMO_DATES)
+    return (date.timetuple().tm_yday - june) / (august - june)
+
+
+def _land_cover_at(
+    layout: _Layout, elevation: np.ndarray, classes: dict[str, _ClassRow], phase: float
+) -> np.ndarray:
+    """Land cover at a season phase: snow above the interpolated snow line, melt as in August."""
+    lc = layout.codes[0].copy()
+    p = max(phase, 0.0)
+    line = (1.0 - p) * layout.snow_lines[0] + p * layout.snow_lines[1]
+    melted = (lc == classes["snow_ice"].code) & (elevation < line)
+    rock, meadow = classes["bare_soil"].code, classes["grassland"].code
+    lc[melted] = np.where(layout.melt_to_rock[melted], rock, meadow)
+    return lc
+
+
+def _blocks(array: np.ndarray, factor: int) -> np.ndarray:
+    """(rows/f, cols/f, f*f) view of the array's f x f blocks (ragged edges dropped)."""
+    rows, cols = array.shape[0] // factor, array.shape[1] // factor
+    cut = array[: rows * factor, : cols * factor]
+    return cut.reshape(rows, factor, cols, factor).transpose(0, 2, 1, 3).reshape(rows, cols, -1)
+
+
+def _coarse_mean(array: np.ndarray, factor: int) -> np.ndarray:
+    """Block mean of the finite values; NaN where fewer than 5 of 9 are finite."""
+    blocks = _blocks(array.astype(np.float64), factor)
+    finite = np.isfinite(blocks)
+    total = np.where(finite, blocks, 0.0).sum(axis=-1)
+    count = finite.sum(axis=-1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(count >= (factor * factor + 1) // 2, total / count, np.nan)
+
+
+def _coarse_mode(codes: np.ndarray, factor: int) -> np.ndarray:
+    """Most frequent code of each block (the lowest code on ties)."""
+    blocks = _blocks(codes, factor)
+    present = np.unique(codes)
+    counts = np.stack([(blocks == c).sum(axis=-1) for c in present])
+    return present[np.argmax(counts, axis=0)].astype(codes.dtype)
+
+
+def series_scene_id(date: _dt.date) -> str:
+    """Scene id of a series date."""
+    return f"kessendry_{date:%Y%m%d}"
+
+
+def series_dates() -> list[_dt.date]:
+    """All series dates, year by year."""
+    return [_dt.date.fromisoformat(f"{year}-{md}") for year in SERIES_YEARS for md in SERIES_DAYS]
+
+
+def make_season_series(tiny_dir: pathlib.Path, seed: int = DEMO_SEED) -> list[pathlib.Path]:
+    """Write the 90 m season series of the demo region into ``tiny_dir/series``.
+
+    Five dates (``SERIES_DAYS``) in each of the years of ``SERIES_YEARS``, 2025 a dry year;
+    per date ``albedo``, ``surface_temperature``, ``ndvi`` and ``land_cover`` (snow melts through
+    the summer) as ``<name>_YYYYMMDD.tif``, plus ``elevation.tif``; a few scenes carry a cloud
+    (NaN in every band). Values are the 30 m region's (``make_tiny_rasters``, same seed, same
+    terrain and fields) averaged over 3 x 3 blocks, land cover the blocks' most frequent class:
+    a 100 x 133 grid of 90 m pixels with the same upper-left corner.
+    """
+    out = pathlib.Path(tiny_dir) / "series"
+    out.mkdir(parents=True, exist_ok=True)
+    classes, _, layout, elevation, (lon, lat) = _region(seed)
+    f = SERIES_FACTOR
+    transform = Affine(_PIXEL_SIZE * f, 0.0, _ORIGIN_X, 0.0, -_PIXEL_SIZE * f, _ORIGIN_Y)
+    written: list[pathlib.Path] = []
+
+    def emit(name: str, array: np.ndarray, nodata: float, units: str, **tags: str) -> None:
+        path = out / f"{name}.tif"
+        _write_geotiff(
+            path,
+            array,
+            nodata=nodata,
+            description=name.rsplit("_", 1)[0] if name[-1].isdigit() else name,
+            units=units,
+            tags=tags,
+            transform=transform,
+            block=128,
+        )
+        written.append(path)
+
+    emit("elevation", np.round(_coarse_mean(elevation, f), 1).astype(np.float32), -9999.0, "m")
+    rows, cols = np.mgrid[0:_ROWS, 0:_COLS]
+    units = {"albedo": "1", "surface_temperature": "K", "ndvi": "1"}
+    digits = {"albedo": 3, "surface_temperature": 2, "ndvi": 3}
+    for year, drought in SERIES_YEARS.items():
+        rng = np.random.default_rng([seed, year])
+        state = np.concatenate([[0.0], rng.standard_normal(layout.n_fields)])
+        for md in SERIES_DAYS:
+            date = _dt.date.fromisoformat(f"{year}-{md}")
+            phase = _phase(date)
+            lc = _land_cover_at(layout, elevation, classes, phase + 0.6 * drought)
+            sun = _sun_vector(date.isoformat(), lat, lon)
+            illumination = _illumination(elevation.astype(float), sun)
+            values = _scene_values(
+                rng, layout, elevation, classes, lc, phase, state, illumination, drought
+            )
+            cloud = _SERIES_CLOUDS.get(date.isoformat())
+            stamp = f"{date:%Y%m%d}"
+            tags = {"DEMO_DATE": date.isoformat(), "DEMO_OVERPASS_UTC": f"{date}T17:50:00Z"}
+            emit(f"land_cover_{stamp}", _coarse_mode(lc, f), 0, "class code", **tags)
+            for name, array in values.items():
+                if cloud is not None:
+                    r, c, radius = cloud
+                    array[np.hypot(rows - r, (cols - c) * 0.8) < radius] = np.nan
+                coarse = np.round(_coarse_mean(array, f), digits[name]).astype(np.float32)
+                emit(f"{name}_{stamp}", coarse, float("nan"), units[name], **tags)
+            # Fields keep part of their water state from one date to the next.
+            state = 0.75 * state + 0.66 * np.concatenate(
+                [[0.0], rng.standard_normal(layout.n_fields)]
+            )
+    return written
+
+
+def _overpass_weather(row: dict[str, float | str]) -> tuple[float, float, float]:
+    """Invented overpass (late-morning) air temperature [C], humidity [%] and wind [m/s]."""
+    return (
+        round(float(row["tmax_c"]) - 3.5, 1),
+        float(min(95, int(row["rh_min_pct"]) + 8)),
+        round(1.2 * float(row["wind_speed_m_s"]), 1),
+    )
+
+
+def series_recipe_text() -> str:
+    """The season-series demo recipe (``workflows/demo_series.toml``), generated from the same
+    invented station weather as the series, so the two never drift apart."""
+    lines = [
+        "# Demo recipe, season series: five scenes a summer over five summers (2022-2026) of the",
+        "# invented Kessendry Basin at 90 m (tiny_rasters/series/), 2025 a dry year; a season",
+        "# total per year and per-zone water volumes. Generated by rasterbudget.demo.",
+        "# series_recipe_text(); weather values are invented for the demo.",
+        "# Compare the years afterwards with: rasterbudget compare workflows/demo_compare.toml",
+        "",
+        "[run]",
+        'out = "../out/demo_series"',
+        "chunk_size = 64",
+        "tile_size = 25",
+        "",
+        "[defaults]",
+        'daily_scaling = "reference_et_fraction"',
+        'daily_table = "../tiny_rasters/daily_weather_{year}.csv"  # the row of each date',
+        "",
+        "[defaults.residual]",
+        "max_evaporative_fraction = 1.15",
+        "",
+        "[defaults.reference_et]",
+        'surface = "tall"',
+        "cold_anchor_fraction = 1.0",
+        "",
+        "[defaults.inputs]                      # {date} is the scene's YYYYMMDD",
+        'albedo = "../tiny_rasters/series/albedo_{date}.tif"',
+        'surface_temperature = "../tiny_rasters/series/surface_temperature_{date}.tif"',
+        'land_cover = "../tiny_rasters/series/land_cover_{date}.tif"',
+        'ndvi = "../tiny_rasters/series/ndvi_{date}.tif"',
+        'elevation = "../tiny_rasters/series/elevation.tif"',
+        "",
+        "[defaults.overpass]",
+        "station_elevation_m = 1560.0",
+        "wind_height_m = 2.0",
+    ]
+    for year, drought in SERIES_YEARS.items():
+        weather = {r["date"]: r for r in _daily_weather_rows(year, drought)}
+        lines += ["", f"# {year}" + (" (dry year)" if year == SERIES_DRY_YEAR else "")]
+        for md in SERIES_DAYS:
+            date = _dt.date.fromisoformat(f"{year}-{md}")
+            t, rh, u = _overpass_weather(weather[date.isoformat()])
+            lines += [
+                "[[scene]]",
+                f'id = "{series_scene_id(date)}"',
+                f"acquired_utc = {date}T17:52:00Z",
+                f"overpass = {{ air_temperature_c = {t}, relative_humidity_pct = {rh}, "
+                f"wind_speed_m_s = {u} }}",
+            ]
+    lines += ["", "[zones]", 'path = "../tiny_rasters/zones.geojson"', 'id_property = "zone_id"']
+    start, end = SERIES_SEASON
+    for year in SERIES_YEARS:
+        ids = ", ".join(
+            f'"{series_scene_id(_dt.date.fromisoformat(f"{year}-{md}"))}"' for md in SERIES_DAYS
+        )
+        lines += [
+            "",
+            "[[season]]",
+            f'id = "summer_{year}"',
+            f"start = {year}-{start}",
+            f"end = {year}-{end}",
+            f"scenes = [{ids}]",
+            f'weather = "../tiny_rasters/daily_weather_{year}.csv"',
+            'fraction = "reference_et_fraction"',
+            'reference = "tall"',
+        ]
+    return "\n".join(lines) + "\n"
 
 
 def make_zones(out_dir: pathlib.Path) -> pathlib.Path:

@@ -36,7 +36,9 @@ def write_quicklook(outputs: dict[str, Path], path: Path, title: str) -> Path:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    fig, axes = plt.subplots(2, 3, figsize=(13, 7.5), constrained_layout=True)
+    # A fixed layout: constrained layout cost about 0.35 s per figure, most of a small scene's run.
+    fig, axes = plt.subplots(2, 3, figsize=(13, 7.5))
+    fig.subplots_adjust(left=0.02, right=0.97, bottom=0.03, top=0.9, wspace=0.12, hspace=0.18)
     for ax, (name, cmap, fixed) in zip(axes.flat, PANELS, strict=True):
         data = _read_decimated(outputs[name])
         finite = data[np.isfinite(data)]

@@ -8,7 +8,9 @@ scene key), and one ``[[scene]]`` table per scene. Units sit in the key names (`
 from __future__ import annotations
 
 import copy
+import csv
 import datetime as dt
+import re
 import tomllib
 from pathlib import Path
 from typing import Annotated, Any, Literal
@@ -33,6 +35,9 @@ class RunSettings(_Strict):
     class_table: str = "builtin"
     write_components: bool = False
     quicklook: bool = True
+    cog: bool = False  # rasters as Cloud Optimized GeoTIFFs (overviews), same names
+    stac: bool = False  # a STAC Item per scene: <scene id>.stac.json
+    zarr: bool = False  # also a Zarr store per scene: outputs.zarr
 
 
 class InputSpec(_Strict):
@@ -261,6 +266,7 @@ class Scene(_Strict):
     inputs: SceneInputs
     overpass: OverpassWeather
     daily: DailyWeather
+    daily_table: str | None = None  # CSV the daily weather was read from (row of the date)
     grid: GridSettings | None = None
     sensible_heat: Literal["anchors", "edges"] = "anchors"
     daily_scaling: Literal["evaporative_fraction", "reference_et_fraction"] = "evaporative_fraction"
@@ -385,6 +391,122 @@ def _format_errors(err: ValidationError, source: str, scene_ids: list[str]) -> s
     return f"recipe {source}: " + "; ".join(parts) + tail
 
 
+#: ``{name}`` placeholders that input paths and ``daily_table`` may hold, filled per scene.
+PLACEHOLDERS = {
+    "date": lambda when, sid: when.strftime("%Y%m%d"),
+    "year": lambda when, sid: f"{when.year:04d}",
+    "doy": lambda when, sid: f"{when.timetuple().tm_yday:03d}",
+    "id": lambda when, sid: sid,
+}
+_PLACEHOLDER = re.compile(r"\{([^{}]*)\}")
+
+
+def _acquired(scene: dict) -> dt.datetime | None:
+    value = scene.get("acquired_utc")
+    if isinstance(value, str):
+        try:
+            value = dt.datetime.fromisoformat(value)
+        except ValueError:
+            return None  # the model reports the bad time
+    if not isinstance(value, dt.datetime) or value.tzinfo is None:
+        return None
+    return value.astimezone(dt.UTC)
+
+
+def _fill(text: str, key: str, scene: dict, source: str) -> str:
+    """``text`` with its placeholders filled from the scene's acquisition time and id."""
+    if "{" not in text:
+        return text
+    when, sid = _acquired(scene), str(scene.get("id", ""))
+
+    def one(match: re.Match) -> str:
+        name = match.group(1)
+        if name not in PLACEHOLDERS:
+            raise RecipeError(
+                f"recipe {source}: scene {sid or '?'}, {key} = {text!r}: unknown placeholder "
+                f"{{{name}}}; use {', '.join('{' + p + '}' for p in PLACEHOLDERS)}."
+            )
+        if when is None and name != "id":
+            raise RecipeError(
+                f"recipe {source}: scene {sid or '?'}, {key} uses {{{name}}} but the scene has "
+                "no valid acquired_utc (e.g. 2026-06-14T17:52:00Z)."
+            )
+        return PLACEHOLDERS[name](when, sid)
+
+    return _PLACEHOLDER.sub(one, text)
+
+
+def _with_placeholders(scene: dict, source: str) -> dict:
+    """Fill placeholders in a merged scene's input paths, gridded weather paths and daily table."""
+    scene = copy.deepcopy(scene)
+    inputs = scene.get("inputs")
+    if isinstance(inputs, dict):
+        for role, value in inputs.items():
+            if isinstance(value, str):
+                inputs[role] = _fill(value, f"inputs.{role}", scene, source)
+            elif isinstance(value, dict):
+                for sub in ("path", "remap"):
+                    if isinstance(value.get(sub), str):
+                        value[sub] = _fill(value[sub], f"inputs.{role}.{sub}", scene, source)
+    overpass = scene.get("overpass")
+    if isinstance(overpass, dict):
+        for k in GRIDDED_WEATHER:
+            if isinstance(overpass.get(k), str):
+                overpass[k] = _fill(overpass[k], f"overpass.{k}", scene, source)
+    if isinstance(scene.get("daily_table"), str):
+        scene["daily_table"] = _fill(scene["daily_table"], "daily_table", scene, source)
+    return scene
+
+
+_DAILY_COLUMNS = tuple(DailyWeather.model_fields)
+
+
+def _daily_from_table(scene: dict, source: str, base: Path, cache: dict) -> dict:
+    """Fill ``daily`` from the ``daily_table`` CSV row of the scene's (UTC) date.
+
+    Keys given in the scene's own ``[scene.daily]`` win over the table's columns.
+    """
+    table = scene.get("daily_table")
+    if not isinstance(table, str):
+        return scene
+    sid = scene.get("id", "?")
+    path = Path(table).expanduser()
+    path = path if path.is_absolute() else (base / path).resolve()
+    if path not in cache:
+        if not path.is_file():
+            raise RecipeError(
+                f"recipe {source}: scene {sid}, daily_table {path} does not exist; give a CSV "
+                "with a 'date' column (YYYY-MM-DD) and the [scene.daily] keys as columns."
+            )
+        with path.open(newline="", encoding="utf-8") as f:
+            cache[path] = {row.get("date", ""): row for row in csv.DictReader(f)}
+    when = _acquired(scene)
+    if when is None:
+        return scene  # the model reports the missing or bad acquired_utc
+    row = cache[path].get(when.date().isoformat())
+    if row is None:
+        raise RecipeError(
+            f"recipe {source}: scene {sid}: daily_table {path} has no row for "
+            f"{when.date().isoformat()} (the scene's UTC date); add it or give [scene.daily]."
+        )
+    values: dict[str, float] = {}
+    for column in _DAILY_COLUMNS:
+        text = (row.get(column) or "").strip()
+        if not text:
+            continue
+        try:
+            values[column] = float(text)
+        except ValueError:
+            raise RecipeError(
+                f"recipe {source}: scene {sid}: daily_table {path}, {when.date()}, column "
+                f"{column} = {text!r} is not a number."
+            ) from None
+    own = scene.get("daily")
+    scene = dict(scene)
+    scene["daily"] = _deep_merge(values, own) if isinstance(own, dict) else values
+    return scene
+
+
 def parse_recipe(
     data: dict[str, Any], source: str = "<recipe>", path: Path | None = None
 ) -> Recipe:
@@ -398,7 +520,16 @@ def parse_recipe(
         raise RecipeError(f"recipe {source}: no [[scene]] table; add at least one scene.")
     if not isinstance(scenes, list):
         raise RecipeError(f"recipe {source}: 'scene' must be an array of tables ([[scene]]).")
-    data["scene"] = [_deep_merge(defaults, s) if isinstance(s, dict) else s for s in scenes]
+    base = path.parent if path is not None else Path.cwd()
+    tables: dict[Path, dict] = {}
+    data["scene"] = [
+        _daily_from_table(
+            _with_placeholders(_deep_merge(defaults, s), source), source, base, tables
+        )
+        if isinstance(s, dict)
+        else s
+        for s in scenes
+    ]
     scene_ids = [str(s.get("id", "?")) if isinstance(s, dict) else "?" for s in data["scene"]]
     try:
         recipe = Recipe(**data, path=path)
@@ -435,3 +566,14 @@ def resolve_path(recipe: Recipe, value: str) -> Path:
     if p.is_absolute() or recipe.path is None:
         return p
     return (recipe.path.parent / p).resolve()
+
+
+def resolve_raster_path(recipe: Recipe, value: str) -> Path | str:
+    """An input raster's location: a local path as :func:`resolve_path`, a remote one unchanged.
+
+    URLs and GDAL virtual paths (``https://``, ``s3://``, ``/vsicurl/`` ...) are handed to GDAL as
+    written; turning them into a ``Path`` would fold their ``//`` and break them.
+    """
+    from .paths import is_remote
+
+    return value if is_remote(value) else resolve_path(recipe, value)

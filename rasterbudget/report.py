@@ -78,7 +78,9 @@ def _scene_section(folder: Path) -> str:
     if (folder / "quicklook.png").is_file():
         parts.append(_file_img(folder / "quicklook.png", "quick-look maps"))
     # histograms
-    fig, axes = plt.subplots(1, 3, figsize=(12, 3), constrained_layout=True)
+    # Fixed layouts throughout: constrained layout dominated the report's time on long batches.
+    fig, axes = plt.subplots(1, 3, figsize=(12, 3))
+    fig.subplots_adjust(left=0.05, right=0.98, bottom=0.12, top=0.88, wspace=0.25)
     for ax, name in zip(
         axes, ("et_daily", "evaporative_fraction", "sensible_heat_flux"), strict=True
     ):
@@ -88,7 +90,8 @@ def _scene_section(folder: Path) -> str:
     parts.append(_img(_png(fig), "histograms"))
     # per-class energy partition
     classes = list(csv.DictReader((folder / "classes.csv").open()))
-    fig, ax = plt.subplots(figsize=(8, 3), constrained_layout=True)
+    fig, ax = plt.subplots(figsize=(8, 3))
+    fig.subplots_adjust(left=0.09, right=0.98, bottom=0.3, top=0.95)
     names = [c["name"] for c in classes]
     le = [float(c["share_to_latent_heat"] or 0) for c in classes]
     h = [float(c["share_to_sensible_heat"] or 0) for c in classes]
@@ -102,7 +105,8 @@ def _scene_section(folder: Path) -> str:
     # anchors on the map, or the edges scatter
     if manifest.get("sensible_heat_method") == "anchors":
         data, (bounds, _) = _read_small(folder / "et_daily.tif")
-        fig, ax = plt.subplots(figsize=(6, 4.5), constrained_layout=True)
+        fig, ax = plt.subplots(figsize=(6, 4.5))
+        fig.subplots_adjust(left=0.12, right=0.95, bottom=0.08, top=0.95)
         image = ax.imshow(
             data, cmap="YlGnBu", extent=(bounds.left, bounds.right, bounds.bottom, bounds.top)
         )
@@ -163,7 +167,8 @@ def _season_section(folder: Path) -> str:
 
     manifest = json.loads((folder / "manifest.json").read_text())
     data, (bounds, _) = _read_small(folder / "et_season.tif")
-    fig, ax = plt.subplots(figsize=(6, 4.5), constrained_layout=True)
+    fig, ax = plt.subplots(figsize=(6, 4.5))
+    fig.subplots_adjust(left=0.12, right=0.95, bottom=0.08, top=0.95)
     image = ax.imshow(
         data, cmap="YlGnBu", extent=(bounds.left, bounds.right, bounds.bottom, bounds.top)
     )
