@@ -18,8 +18,9 @@ from . import __version__
 from .errors import RasterBudgetError
 from .landcover import ClassTable
 from .outputs import write_text_atomic
+from .paths import is_remote
 from .pipeline import RunSettings, run_scene
-from .recipe import Recipe, Scene, resolve_path
+from .recipe import Recipe, Scene, resolve_raster_path
 from .summaries import rows_to_csv
 
 BATCH_TABLE = "batch.csv"
@@ -33,13 +34,10 @@ def scene_fingerprint(
     for key, value in json.loads(scene.inputs.model_dump_json()).items():
         if value is None:
             continue
-        path = resolve_path(recipe, value["path"] if isinstance(value, dict) else value)
-        stat = path.stat() if path.exists() else None
-        files[key] = [str(path), stat.st_size if stat else None, stat.st_mtime_ns if stat else None]
+        path = resolve_raster_path(recipe, value["path"] if isinstance(value, dict) else value)
+        files[key] = _file_identity(path)
     for key, value in scene.overpass.gridded().items():
-        path = resolve_path(recipe, value)
-        stat = path.stat() if path.exists() else None
-        files[key] = [str(path), stat.st_size if stat else None, stat.st_mtime_ns if stat else None]
+        files[key] = _file_identity(resolve_raster_path(recipe, value))
     payload = {
         "version": __version__,
         "scene": json.loads(scene.model_dump_json()),
@@ -49,9 +47,19 @@ def scene_fingerprint(
             "write_components": settings.write_components,
             "quicklook": settings.quicklook,
             "tile_size": settings.tile_size,
+            # only when on, so fingerprints of runs without them stay as they were
+            **{k: True for k in ("cog", "stac", "zarr") if getattr(settings, k)},
         },
     }
     return hashlib.sha256(json.dumps(payload, sort_keys=True).encode()).hexdigest()
+
+
+def _file_identity(path: Path | str) -> list:
+    """Path, size and modification time of a local input; a remote one by its address only."""
+    if is_remote(path) or not Path(path).exists():
+        return [str(path), None, None]
+    stat = Path(path).stat()
+    return [str(path), stat.st_size, stat.st_mtime_ns]
 
 
 def is_complete(out_dir: Path, fingerprint: str) -> bool:
@@ -65,7 +73,8 @@ def is_complete(out_dir: Path, fingerprint: str) -> bool:
         return False
     if manifest.get("status") != "complete" or manifest.get("fingerprint") != fingerprint:
         return False
-    return all((out_dir / name).is_file() for name in manifest.get("outputs", {}).values())
+    # exists(), not is_file(): outputs.zarr is a folder
+    return all((out_dir / name).exists() for name in manifest.get("outputs", {}).values())
 
 
 @dataclass

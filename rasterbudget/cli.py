@@ -113,6 +113,9 @@ def run(
             write_components=parsed.run.write_components if components is None else components,
             quicklook=parsed.run.quicklook and not no_quicklook,
             progress=not quiet and sys.stderr.isatty(),
+            cog=parsed.run.cog,
+            stac=parsed.run.stac,
+            zarr=parsed.run.zarr,
         )
         from .batch import run_batch
 
@@ -205,8 +208,19 @@ def run(
     "--out",
     "out_dir",
     type=click.Path(file_okay=False, path_type=Path),
-    required=True,
-    help="Output folder.",
+    help="Output folder (required when CURRENT is a raster; overrides compare.out of a recipe).",
+)
+@click.option(
+    "--zones",
+    "zones_path",
+    type=click.Path(dir_okay=False, path_type=Path),
+    help="GeoJSON polygons: per-zone means, volumes and category shares (zones.csv).",
+)
+@click.option(
+    "--zone-id",
+    default="zone_id",
+    show_default=True,
+    help="Property of each polygon that holds its zone id.",
 )
 @click.option(
     "--chunk-size",
@@ -215,33 +229,66 @@ def run(
     show_default=True,
     help="Edge of the blocks processed at once.",
 )
+@click.option(
+    "--tile-size",
+    type=click.IntRange(16, 16384),
+    default=256,
+    show_default=True,
+    help="Edge of the tiles of tiles.csv.",
+)
 @debug_option
 def compare(
     current: Path,
     previous: Path | None,
     baseline: tuple[Path, ...],
-    out_dir: Path,
+    out_dir: Path | None,
+    zones_path: Path | None,
+    zone_id: str,
     chunk_size: int,
+    tile_size: int,
     debug: bool,
 ) -> None:
-    """Compare CURRENT (e.g. a season's et_season.tif) with another period or a baseline.
+    """Compare CURRENT (e.g. a season's et_season.tif) with another period or a baseline, or run
+    the comparisons of a comparison recipe (CURRENT ending in .toml).
 
-    All rasters must be on one grid (outputs of recipes with the same target grid).
+    All rasters must be on one grid (outputs of recipes with the same target grid). Writes the
+    comparison rasters, tiles.csv/geojson, categories.csv, zones.csv/geojson (with --zones or the
+    recipe's [compare.zones]), compare.json and, for a recipe, report.html.
 
     \b
     Examples:
+      rasterbudget compare workflows/demo_compare.toml
       rasterbudget compare summer_2026/et_season.tif --previous summer_2025/et_season.tif \\
           --out change
       rasterbudget compare summer_2026/et_season.tif --baseline y2021.tif \\
-          --baseline y2022.tif --baseline y2023.tif --out anomaly
+          --baseline y2022.tif --baseline y2023.tif --out anomaly --zones fields.geojson
     """
     try:
         from .compare import run_compare
 
-        summary = run_compare(current, out_dir, previous, list(baseline), chunk_size)
-        click.echo(f"wrote {', '.join(summary['outputs'])} to {out_dir}")
-        for row in summary.get("categories", []):
-            click.echo(f"  {row['category']:15s} {row['share_of_valid_area']:7.1%}")
+        if current.suffix.lower() == ".toml":
+            if previous is not None or baseline or zones_path is not None:
+                raise RasterBudgetError(
+                    f"{current} is a comparison recipe: give --previous, --baseline and --zones "
+                    "in its [[comparison]] and [compare.zones] tables, not on the command line."
+                )
+            from .compare import run_compare_recipe
+            from .recipe import load_compare_recipe
+
+            results = run_compare_recipe(load_compare_recipe(current), out_dir)
+        else:
+            if out_dir is None:
+                raise RasterBudgetError("give --out: the folder for the comparison outputs.")
+            zones = (zones_path, zone_id) if zones_path is not None else None
+            summary = run_compare(
+                current, out_dir, previous, list(baseline), chunk_size, tile_size, zones
+            )
+            results = [(out_dir, summary)]
+        for folder, summary in results:
+            wrote = ", ".join(summary["outputs"])
+            click.echo(f"{summary['comparison']}: wrote {wrote} to {folder}")
+            for row in summary.get("categories", []):
+                click.echo(f"  {row['category']:15s} {row['share_of_valid_area']:7.1%}")
     except RasterBudgetError as err:
         _fail(err, debug)
 
@@ -296,8 +343,10 @@ def demo(out_dir: Path, debug: bool) -> None:
     """
     try:
         from .demo import (
+            SERIES_YEARS,
             make_daily_weather,
             make_mixed_grid_inputs,
+            make_season_series,
             make_tiny_rasters,
             make_zones,
         )
@@ -305,9 +354,10 @@ def demo(out_dir: Path, debug: bool) -> None:
         out_dir.mkdir(parents=True, exist_ok=True)
         files = make_tiny_rasters(out_dir)
         files += make_mixed_grid_inputs(out_dir)
-        files.append(make_daily_weather(out_dir))
+        files += make_season_series(out_dir)
+        files += [make_daily_weather(out_dir, year) for year in SERIES_YEARS]
         files.append(make_zones(out_dir))
-        click.echo(f"wrote {len(files)} rasters to {out_dir}")
+        click.echo(f"wrote {len(files)} files to {out_dir}")
     except RasterBudgetError as err:
         _fail(err, debug)
 

@@ -10,6 +10,8 @@ in the more extreme class (z = -1.0 is moderately dry). For ET, below normal rea
 from __future__ import annotations
 
 import itertools
+import json
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -44,8 +46,6 @@ def standardized_anomaly(current: np.ndarray, baseline: np.ndarray) -> np.ndarra
 
     NaN where fewer than two baseline values exist or their spread is zero.
     """
-    import warnings
-
     count = np.isfinite(baseline).sum(axis=0)
     with np.errstate(invalid="ignore", divide="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN pixels: handled below
@@ -69,34 +69,132 @@ def drought_category(z: np.ndarray) -> np.ndarray:
     return code
 
 
+#: Comparison variables averaged per zone (those the comparison has).
+ZONE_VARIABLES = ("current", "previous", "difference", "baseline_mean", "standardized_anomaly")
+
+
+def zone_comparison_sums(
+    values: np.ndarray,
+    with_category: bool,
+    masks: list[tuple[int, np.ndarray]],
+    areas: np.ndarray,
+    n_zones: int,
+) -> np.ndarray:
+    """Area-weighted sums per zone of one block of comparison values.
+
+    ``values`` is (variables, rows, cols): the float variables, then the category layer when
+    ``with_category``. ``areas`` holds each row's cell area [m2]. Returns (3 + 2 n + 7, zones):
+    zone area, pixel count, categorised area, then per float variable its area-weighted sum and
+    its valid area, then the area of each category 1-7 [m2].
+    """
+    n_float = values.shape[0] - int(with_category)
+    area = np.broadcast_to(areas[:, None], values.shape[1:])
+    out = np.zeros((3 + 2 * n_float + 7, n_zones))
+    finite = np.isfinite(values[:n_float])
+    for k, inside in masks:
+        out[0, k] = area[inside].sum()
+        out[1, k] = inside.sum()
+        for v in range(n_float):
+            ok = inside & finite[v]
+            out[3 + 2 * v, k] = (values[v][ok] * area[ok]).sum()
+            out[4 + 2 * v, k] = area[ok].sum()
+        if with_category:
+            codes = values[-1]
+            out[2, k] = area[inside & (codes > 0)].sum()
+            for c in range(1, 8):
+                out[3 + 2 * n_float + c - 1, k] = area[inside & (codes == c)].sum()
+    return out
+
+
+def zone_comparison_rows(
+    ids: list[str], totals: np.ndarray, float_names: list[str], with_category: bool, units: str
+) -> list[dict]:
+    """Rows of the comparison's ``zones.csv``: area, valid share, area-weighted means, volumes
+    (when the rasters are depths in mm) and the share of the zone's area in each category."""
+    from .zones import CUBIC_METRES_PER_ACRE_FOOT
+
+    rows = []
+    for k, zone in enumerate(ids):
+        area, pixels, categorised = totals[0, k], totals[1, k], totals[2, k]
+        row: dict = {"zone_id": zone, "pixels": int(pixels), "area_m2": area}
+        means = {}
+        for v, name in enumerate(float_names):
+            weighted, valid_area = totals[3 + 2 * v, k], totals[4 + 2 * v, k]
+            means[name] = weighted / valid_area if valid_area else float("nan")
+            if name == "current":
+                row["valid_fraction"] = valid_area / area if area else float("nan")
+            row[f"{name}_mean"] = means[name]
+        if "previous" in means:
+            prev = means["previous"]
+            row["percent_change_of_means"] = (
+                100.0 * (means["current"] - prev) / prev if prev else float("nan")
+            )
+        if units == "mm":  # depths: volumes over the whole zone at its mean depth
+            for name in ("current", "difference"):
+                if name in means:
+                    row[f"{name}_volume_m3"] = means[name] / 1000.0 * area
+            if "difference" in means:
+                row["difference_volume_acre_feet"] = (
+                    row["difference_volume_m3"] / CUBIC_METRES_PER_ACRE_FOOT
+                )
+        if with_category:
+            n_float = len(float_names)
+            for c in range(1, 8):
+                share = totals[3 + 2 * n_float + c - 1, k] / categorised if categorised else 0.0
+                row[f"share_{CATEGORIES[c].replace(' ', '_')}"] = share
+        rows.append(row)
+    return rows
+
+
+def _json_ready(value):
+    """Plain JSON values: NaN and infinities become null, numpy scalars Python numbers."""
+    if isinstance(value, dict):
+        return {k: _json_ready(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_json_ready(v) for v in value]
+    if isinstance(value, float | np.floating):
+        return float(value) if np.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
+
+
 def run_compare(
     current: Path,
     out_dir: Path,
     previous: Path | None = None,
     baseline: list[Path] = (),
     chunk: int = 1024,
+    tile_size: int = 256,
+    zones: tuple[Path, str] | None = None,
+    label: str | None = None,
 ) -> dict:
-    """Write the comparison rasters into ``out_dir`` in one chunked pass; return a summary."""
+    """Write comparison rasters, tile summaries and (optionally) per-zone tables into ``out_dir``.
+
+    One chunked pass and one dask compute: the rasters, the tile statistics, the category counts
+    and the per-zone sums come from the same blocks. Returns a summary (also ``compare.json``).
+    """
     import dask
     import dask.array as da
     import rasterio
-    from rasterio import windows
+    from rasterio import features, windows
 
     from .grid import GDAL_OPTIONS, Grid
-    from .outputs import AtomicRaster, block_size_for, write_text_atomic
+    from .outputs import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
     from .pipeline import effective_chunk_size
-    from .summaries import rows_to_csv
+    from .summaries import rows_to_csv, tile_layout, tile_rows, tile_statistics, tiles_geojson
 
     paths = [current, *([previous] if previous else []), *baseline]
     for p in paths:
         if not Path(p).is_file():
             raise InputRasterError(
                 f"raster {p} does not exist; give the path of an output "
-                "GeoTIFF (e.g. OUT/<season>/et_season.tif)."
+                "GeoTIFF (e.g. OUT/<season>/et_season.tif), or run the recipe that makes it."
             )
     with rasterio.open(current) as src:
         grid = Grid(src.crs, src.transform, src.width, src.height)
         units = src.tags(1).get("units", "")
+        variable = src.descriptions[0] or Path(current).stem
     for p in paths[1:]:
         with rasterio.open(p) as src:
             if (src.crs, src.transform, src.shape) != (
@@ -113,13 +211,20 @@ def run_compare(
             "give --previous for a difference, or at least two --baseline "
             "rasters for a standardized anomaly."
         )
+    zone_ids: list[str] = []
+    if zones is not None:
+        from .zones import block_masks, cell_areas, load_zones
+
+        zone_ids, zone_props, zone_original, zone_geoms = load_zones(zones[0], zones[1], grid.crs)
+        zone_boxes = [features.bounds(g) for g in zone_geoms]
     chunk = effective_chunk_size(chunk)
     block = block_size_for(chunk)
-    names = []
+    names = ["current"]
     if previous is not None:
-        names += ["difference", "percent_change"]
+        names += ["previous", "difference", "percent_change"]
     if len(baseline) >= 2:
-        names += ["standardized_anomaly", "drought_category"]
+        names += ["baseline_mean", "standardized_anomaly", "drought_category"]
+    with_category = "drought_category" in names
 
     def task(r0, r1, c0, c1):
         window = windows.Window(c0, r0, c1 - c0, r1 - r0)
@@ -129,31 +234,49 @@ def run_compare(
                 return src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
 
         x = read(current)
-        out = []
+        out = [x]
         if previous is not None:
             y = read(previous)
-            out += [difference(x, y), percent_change(x, y)]
+            out += [y, difference(x, y), percent_change(x, y)]
         if len(baseline) >= 2:
-            z = standardized_anomaly(x, np.stack([read(p) for p in baseline]))
-            out += [z, drought_category(z).astype(np.float64)]
+            stack = np.stack([read(p) for p in baseline])
+            z = standardized_anomaly(x, stack)
+            with np.errstate(invalid="ignore"), warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                mean = np.nanmean(stack, axis=0)
+            out += [mean, z, drought_category(z).astype(np.float64)]
         return np.stack(out)
+
+    def zone_task(values, r0, r1, c0, c1):
+        window = windows.Window(c0, r0, c1 - c0, r1 - r0)
+        transform = windows.transform(window, grid.transform)
+        masks = block_masks(zone_geoms, zone_boxes, transform, values.shape[1:])
+        # zone sums over: current, [difference], [anomaly], [category]
+        keep = [names.index(n) for n in ZONE_VARIABLES if n in names]
+        picked = values[keep]
+        if with_category:
+            picked = np.concatenate([picked, values[[names.index("drought_category")]]])
+        return zone_comparison_sums(
+            picked, with_category, masks, cell_areas(grid, slice(r0, r1)), len(zone_ids)
+        )
 
     rows = [*range(0, grid.height, chunk), grid.height]
     cols = [*range(0, grid.width, chunk), grid.width]
+    delayed_blocks = [
+        [dask.delayed(task)(r0, r1, c0, c1) for c0, c1 in itertools.pairwise(cols)]
+        for r0, r1 in itertools.pairwise(rows)
+    ]
     stacked = da.block(
         [
             [
-                da.from_delayed(
-                    dask.delayed(task)(r0, r1, c0, c1),
-                    shape=(len(names), r1 - r0, c1 - c0),
-                    dtype=np.float64,
-                )
-                for c0, c1 in itertools.pairwise(cols)
+                da.from_delayed(b, shape=(len(names), r1 - r0, c1 - c0), dtype=np.float64)
+                for b, (c0, c1) in zip(row, itertools.pairwise(cols), strict=True)
             ]
-            for r0, r1 in itertools.pairwise(rows)
+            for row, (r0, r1) in zip(delayed_blocks, itertools.pairwise(rows), strict=True)
         ]
     )
     out_dir.mkdir(parents=True, exist_ok=True)
+    remove_stale_partials(out_dir)
     described = {
         "difference": (units, "current - previous"),
         "percent_change": ("%", "100 (current - previous) / previous"),
@@ -163,8 +286,9 @@ def run_compare(
             "1 extremely dry ... 4 near normal ... 7 extremely wet (McKee et al. 1993 classes)",
         ),
     }
+    written = [n for n in names if n in described]
     writers, sources = [], []
-    for k, name in enumerate(names):
+    for name in written:
         categorical = name == "drought_category"
         writers.append(
             AtomicRaster(
@@ -177,22 +301,49 @@ def run_compare(
                 *described[name],
             )
         )
-        sources.append(stacked[k].astype(np.uint8 if categorical else np.float32))
+        sources.append(stacked[names.index(name)].astype(np.uint8 if categorical else np.float32))
     counts = None
-    if "drought_category" in names:
+    if with_category:
         codes = stacked[names.index("drought_category")]
         counts = [da.sum(codes == c) for c in range(8)]
+    summarised = [n for n in names if n != "drought_category"]
+    index = [names.index(n) for n in summarised]
+    tiled = stacked[index].rechunk((len(index), tile_size, tile_size))
+    tile_stats = [
+        [dask.delayed(tile_statistics)(b) for b in row]
+        for row in tiled.to_delayed(optimize_graph=False)[0]
+    ]
+    zone_parts = []
+    if zone_ids:
+        zone_parts = [
+            dask.delayed(zone_task)(b, r0, r1, c0, c1)
+            for row, (r0, r1) in zip(delayed_blocks, itertools.pairwise(rows), strict=True)
+            for b, (c0, c1) in zip(row, itertools.pairwise(cols), strict=True)
+        ]
     try:
         with rasterio.Env(**GDAL_OPTIONS):
             store = da.store(sources, writers, lock=False, compute=False)
-            _, counts = dask.compute(store, counts)
+            _, counts, tile_stats, zone_parts = dask.compute(store, counts, tile_stats, zone_parts)
         for w in writers:
             w.commit()
     finally:
         for w in writers:
             if not w.dataset.closed:
                 w.abort()
-    summary = {"outputs": [f"{n}.tif" for n in names]}
+    summary: dict = {
+        "comparison": label or out_dir.name,
+        "variable": variable,
+        "units": units,
+        "current": str(current),
+        "previous": str(previous) if previous else None,
+        "baseline": [str(p) for p in baseline],
+        "outputs": [f"{n}.tif" for n in written],
+    }
+    tile_stats = np.array([[np.asarray(t) for t in row] for row in tile_stats])
+    tiles = tile_rows(tile_stats, summarised, tile_layout(grid, tile_size))
+    write_text_atomic(out_dir / "tiles.csv", rows_to_csv(tiles))
+    write_text_atomic(out_dir / "tiles.geojson", tiles_geojson(tiles, grid.crs.to_string()))
+    summary["outputs"] += ["tiles.csv", "tiles.geojson"]
     if counts is not None:
         valid = sum(int(c) for c in counts[1:])
         share = [
@@ -206,4 +357,45 @@ def run_compare(
         ]
         write_text_atomic(out_dir / "categories.csv", rows_to_csv(share))
         summary["categories"] = share
+        summary["outputs"].append("categories.csv")
+    if zone_ids:
+        totals = np.sum(zone_parts, axis=0)
+        float_names = [n for n in ZONE_VARIABLES if n in names]
+        zone_table = zone_comparison_rows(zone_ids, totals, float_names, with_category, units)
+        from .zones import write_zone_tables
+
+        write_zone_tables(out_dir, zone_table, zone_props, zone_original)
+        summary["zones"] = zone_table
+        summary["outputs"] += ["zones.csv", "zones.geojson"]
+    write_text_atomic(out_dir / "compare.json", json.dumps(_json_ready(summary), indent=2) + "\n")
     return summary
+
+
+def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[Path, dict]]:
+    """Run each ``[[comparison]]`` of a comparison recipe into ``OUT/<id>/``; write the report."""
+    from .recipe import resolve_path
+    from .report import write_compare_report
+
+    settings = recipe.compare
+    out = out_override if out_override is not None else resolve_path(recipe, settings.out)
+    zones = (
+        (resolve_path(recipe, settings.zones.path), settings.zones.id_property)
+        if settings.zones is not None
+        else None
+    )
+    results = []
+    for c in recipe.comparison:
+        folder = out / c.id
+        summary = run_compare(
+            resolve_path(recipe, c.current),
+            folder,
+            resolve_path(recipe, c.previous) if c.previous else None,
+            [resolve_path(recipe, p) for p in c.baseline],
+            settings.chunk_size,
+            settings.tile_size,
+            zones,
+            label=c.id,
+        )
+        results.append((folder, summary))
+    write_compare_report(out, results)
+    return results

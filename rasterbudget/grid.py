@@ -23,6 +23,7 @@ from rasterio.warp import transform_bounds
 from rasterio.windows import Window
 
 from .errors import InputRasterError
+from .paths import is_remote
 
 #: GDAL settings for every read and write (block cache bounded; see DEVELOPERS.md).
 GDAL_OPTIONS = {"GDAL_CACHEMAX": 64, "GDAL_NUM_THREADS": 1}
@@ -66,9 +67,11 @@ class Grid:
         )
 
 
-def _open(path: Path, role: str) -> rasterio.io.DatasetReader:
-    if not path.exists():
-        key = f"overpass.{role}" if role in WEATHER_ROLES else f"inputs.{role}"
+def _open(path: Path | str, role: str) -> rasterio.io.DatasetReader:
+    key = f"overpass.{role}" if role in WEATHER_ROLES else f"inputs.{role}"
+    remote = is_remote(path)
+    # A remote location has no file to look for: GDAL opening it is the check.
+    if not remote and not Path(path).exists():
         raise InputRasterError(
             f"{role} raster {path} does not exist; check {key} in the recipe "
             "(paths are relative to the recipe file)."
@@ -76,13 +79,20 @@ def _open(path: Path, role: str) -> rasterio.io.DatasetReader:
     try:
         return rasterio.open(path)
     except RasterioIOError as err:
+        reason = str(err).splitlines()[0] if str(err) else type(err).__name__
+        if remote:
+            raise InputRasterError(
+                f"{role} raster {path} could not be opened ({reason}); check the address in "
+                f"{key}, that this machine can reach it, and that GDAL reads its format "
+                "(URLs and GDAL /vsi paths are passed to GDAL as written)."
+            ) from None
         raise InputRasterError(
-            f"{role} raster {path} cannot be read as a raster ({str(err).splitlines()[0]}); "
+            f"{role} raster {path} cannot be read as a raster ({reason}); "
             "give a GeoTIFF or another format GDAL reads."
         ) from None
 
 
-def target_grid(albedo_path: Path) -> Grid:
+def target_grid(albedo_path: Path | str) -> Grid:
     """The albedo raster's grid, refused when it has no CRS or is not north-up."""
     with _open(albedo_path, "albedo") as src:
         if src.crs is None:
@@ -135,7 +145,7 @@ def overlap_fraction(src, grid: Grid) -> float:
     return width * height / ((g_right - g_left) * (g_top - g_bottom))
 
 
-def check_input(path: Path, role: str, grid: Grid) -> dict:
+def check_input(path: Path | str, role: str, grid: Grid) -> dict:
     """Check one input can be read and overlaps the grid; return a description for the manifest."""
     with _open(path, role) as src:
         if src.crs is None:
@@ -200,7 +210,7 @@ class InputSource:
         return Resampling.nearest if self.role in CATEGORICAL else Resampling.bilinear
 
 
-def input_source(path: Path, role: str, grid: Grid, spec=None) -> InputSource:
+def input_source(path: Path | str, role: str, grid: Grid, spec=None) -> InputSource:
     """Describe how to read ``path`` as ``role``; ``spec`` holds recipe overrides (or None)."""
     with rasterio.open(path) as src:
         same = grid.same_as(src)

@@ -40,7 +40,7 @@ from .pipeline import (
     scene_constants,
     with_weather_at_centre,
 )
-from .recipe import Recipe, Scene, resolve_path
+from .recipe import Recipe, Scene, resolve_path, resolve_raster_path
 from .surface import ClassLookups, land_cover_codes, surface_block
 
 SAMPLE_SIDE = 1024
@@ -68,11 +68,11 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
     for role in REQUIRED_INPUTS + OPTIONAL_INPUTS:
         spec = scene.inputs.spec(role)
         if spec is not None:
-            paths[role], specs[role] = resolve_path(recipe, spec.path), spec
+            paths[role], specs[role] = resolve_raster_path(recipe, spec.path), spec
     if scene.inputs.cloud_mask is not None:
-        paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
+        paths["cloud_mask"] = resolve_raster_path(recipe, scene.inputs.cloud_mask.path)
     for key, value in scene.overpass.gridded().items():
-        paths[key] = resolve_path(recipe, value)
+        paths[key] = resolve_raster_path(recipe, value)
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths["albedo"])
         if scene.grid is not None:

@@ -1,8 +1,13 @@
-"""GeoTIFF writing: atomic (temporary name, rename when complete), one lock per file, band tags."""
+"""GeoTIFF writing: atomic (temporary name, rename when complete), one lock per file, band tags.
+
+With ``cog=True`` each raster is made a Cloud Optimized GeoTIFF (GDAL's COG driver: tiles,
+overviews, the same compression) before it takes its final name.
+"""
 
 from __future__ import annotations
 
 import os
+import shutil
 import threading
 from pathlib import Path
 
@@ -58,6 +63,34 @@ def creation_options(block_size: int, dtype: str) -> dict:
     }
 
 
+def overview_resampling(dtype: str) -> str:
+    """Resampling for overviews: average for continuous floats, nearest for integer codes.
+
+    Averaging QA bit masks or class codes would invent values no pixel has; nearest keeps every
+    overview pixel a real pixel's flags.
+    """
+    return "average" if np.dtype(dtype).kind == "f" else "nearest"
+
+
+def cog_options(block_size: int, dtype: str) -> dict:
+    """Creation options of GDAL's COG driver matching :func:`creation_options`.
+
+    Same tile edge (so a COG tile still lies inside one chunk), DEFLATE level 1 with the predictor
+    suited to the type (YES: floating-point for floats, horizontal differencing for integers), and
+    overviews down to one tile, resampled by :func:`overview_resampling`.
+    """
+    return {
+        "driver": "COG",
+        "blocksize": block_size,
+        "compress": "deflate",
+        "level": 1,
+        "predictor": "yes",
+        "bigtiff": "if_safer",
+        "overviews": "auto",
+        "resampling": overview_resampling(dtype),
+    }
+
+
 def block_size_for(chunk_size: int) -> int:
     """GeoTIFF block edge that divides the chunk size (so chunks never share a block)."""
     for size in (512, 256, 128, 64, 32, 16):
@@ -70,8 +103,11 @@ class AtomicRaster:
     """A single-band GeoTIFF written window by window under a temporary name.
 
     ``__setitem__`` takes the (row-slice, col-slice) keys that ``dask.array.store`` sends; each file
-    has its own lock (a lock shared by all files serialised the writes: DESIGN.md). ``commit``
-    renames the file to its final name; ``abort`` removes it.
+    has its own lock (a lock shared by all files serialised the writes: DESIGN.md). ``finish``
+    closes the file and, with ``cog``, copies it to a Cloud Optimized GeoTIFF (still under a
+    temporary name); ``commit`` renames the result to its final name; ``abort`` removes every
+    temporary file. Finishing all files before committing any means a failed conversion leaves no
+    final name behind.
     """
 
     def __init__(
@@ -85,9 +121,15 @@ class AtomicRaster:
         units: str,
         description: str,
         tags: dict | None = None,
+        cog: bool = False,
     ) -> None:
         self.path = Path(path)
         self.partial = self.path.with_name(self.path.name + PARTIAL_SUFFIX)
+        # The COG copy also ends in .partial, so remove_stale_partials clears it after a crash.
+        self.cog_partial = self.path.with_name(self.path.name + ".cog" + PARTIAL_SUFFIX)
+        self.cog = cog
+        self.block_size = block_size
+        self._ready: Path | None = None
         self.lock = threading.Lock()
         self.dataset = rasterio.open(
             self.partial,
@@ -106,6 +148,9 @@ class AtomicRaster:
         if tags:
             self.dataset.update_tags(**{k: str(v) for k, v in tags.items()})
         self.dtype = dtype
+        self.nodata = nodata
+        self.units = units
+        self.description = description
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -117,15 +162,43 @@ class AtomicRaster:
         with self.lock:
             self.dataset.write(np.asarray(value, dtype=self.dtype), 1, window=window)
 
-    def commit(self) -> Path:
+    def finish(self) -> None:
+        """Close the file; with ``cog``, convert it to a COG under its temporary name."""
         self.dataset.close()
-        os.replace(self.partial, self.path)
+        if not self.cog:
+            self._ready = self.partial
+            return
+        write_cog(self.partial, self.cog_partial, self.block_size, self.dtype)
+        self.partial.unlink()
+        self._ready = self.cog_partial
+
+    def commit(self) -> Path:
+        """Give the finished file its final name (finishing it first if needed)."""
+        if self._ready is None:
+            self.finish()
+        os.replace(self._ready, self.path)
         return self.path
 
     def abort(self) -> None:
         if not self.dataset.closed:
             self.dataset.close()
         self.partial.unlink(missing_ok=True)
+        self.cog_partial.unlink(missing_ok=True)
+
+
+def write_cog(source: Path, target: Path, block_size: int, dtype: str) -> Path:
+    """Copy a GeoTIFF to a Cloud Optimized GeoTIFF at ``target`` (removed again on failure).
+
+    Tags and band descriptions are copied by GDAL's CreateCopy along with the pixels.
+    """
+    from rasterio.shutil import copy
+
+    try:
+        copy(source, target, **cog_options(block_size, dtype))
+    except BaseException:
+        target.unlink(missing_ok=True)
+        raise
+    return target
 
 
 def write_text_atomic(path: Path, text: str) -> Path:
@@ -137,6 +210,9 @@ def write_text_atomic(path: Path, text: str) -> Path:
 
 
 def remove_stale_partials(folder: Path) -> None:
-    """Remove temporary files left by an interrupted run."""
+    """Remove temporary files (and temporary Zarr folders) left by an interrupted run."""
     for stale in folder.glob("*" + PARTIAL_SUFFIX):
-        stale.unlink(missing_ok=True)
+        if stale.is_dir() and not stale.is_symlink():
+            shutil.rmtree(stale, ignore_errors=True)
+        else:
+            stale.unlink(missing_ok=True)

@@ -14,6 +14,7 @@ import hashlib
 import itertools
 import json
 import math
+import os
 import platform
 import threading
 import time
@@ -50,6 +51,7 @@ from .outputs import (
     remove_stale_partials,
     write_text_atomic,
 )
+from .paths import is_remote, local_size
 from .physics import partition, radiation, turbulence
 from .physics.constants import SECONDS_PER_HOUR
 from .physics.solar import (
@@ -62,12 +64,13 @@ from .physics.solar import (
     solar_declination,
 )
 from .qa import QA, QA_DESCRIPTIONS
-from .recipe import Recipe, Scene, resolve_path
+from .recipe import Recipe, Scene, resolve_path, resolve_raster_path
 from .summaries import (
     HISTOGRAM_RANGES,
     class_histograms,
     class_rows,
     rows_to_csv,
+    tile_layout,
     tile_rows,
     tile_statistics,
     tiles_geojson,
@@ -96,6 +99,9 @@ class RunSettings:
     write_components: bool = False
     quicklook: bool = True
     progress: bool = False
+    cog: bool = False  # rasters as Cloud Optimized GeoTIFFs (same names)
+    stac: bool = True  # <scene id>.stac.json
+    zarr: bool = False  # outputs.zarr, filled by the same compute as the GeoTIFFs
 
 
 @dataclass
@@ -933,17 +939,21 @@ def run_scene(
     timings: dict[str, float] = {}
     chunk = effective_chunk_size(settings.chunk_size)
     block = block_size_for(chunk)
+    if settings.zarr:
+        from .cloud import require_zarr
+
+        require_zarr()  # before any pass, not after minutes of work
 
     paths, specs = {}, {}
     for role in REQUIRED_INPUTS + OPTIONAL_INPUTS:
         spec = scene.inputs.spec(role)
         if spec is not None:
-            paths[role] = resolve_path(recipe, spec.path)
+            paths[role] = resolve_raster_path(recipe, spec.path)
             specs[role] = spec
     if scene.inputs.cloud_mask is not None:
-        paths["cloud_mask"] = resolve_path(recipe, scene.inputs.cloud_mask.path)
+        paths["cloud_mask"] = resolve_raster_path(recipe, scene.inputs.cloud_mask.path)
     for key, value in scene.overpass.gridded().items():
-        paths[key] = resolve_path(recipe, value)
+        paths[key] = resolve_raster_path(recipe, value)
     remap = {}
     if specs["land_cover"].remap is not None:
         from .landcover import load_remap
@@ -974,6 +984,7 @@ def run_scene(
     env = rasterio.Env(**GDAL_OPTIONS)
     env.__enter__()
     writers: list[AtomicRaster] = []
+    zarr_store = None
     try:
         sources = tuple(
             input_source(path, role, grid, specs.get(role)) for role, path in paths.items()
@@ -1089,7 +1100,16 @@ def run_scene(
         for k, name in enumerate(written):
             units, text = descriptions[name]
             writer = AtomicRaster(
-                out_dir / f"{name}.tif", grid, "float32", np.nan, block, name, units, text, tags
+                out_dir / f"{name}.tif",
+                grid,
+                "float32",
+                np.nan,
+                block,
+                name,
+                units,
+                text,
+                tags,
+                cog=settings.cog,
             )
             writers.append(writer)
             sources.append(stacked[k])
@@ -1104,10 +1124,22 @@ def run_scene(
             "bitmask",
             "QA flags, bits in the README",
             tags,
+            cog=settings.cog,
         )
         writers.append(qa_writer)
         sources.append(stacked[variables.index(QA_OUTPUT)].astype(np.uint16))
         targets.append(qa_writer)
+        if settings.zarr:
+            from .cloud import ZARR_NAME, AtomicZarr
+
+            zarr_vars = {n: ("float32", *descriptions[n]) for n in written}
+            zarr_vars[QA_OUTPUT] = ("uint16", "1", "QA flags, bits in the README")
+            zarr_store = AtomicZarr(out_dir / ZARR_NAME, grid, chunk, zarr_vars, tags)
+            # The same dask arrays as the GeoTIFFs': dask merges the graphs by key, so each
+            # block is computed once and written to both.
+            for array, source in zip(zarr_store.arrays.values(), list(sources), strict=True):
+                sources.append(source)
+                targets.append(array)
         # A lock per file: GDAL handles are not thread-safe, but different files may be
         # written at once (AtomicRaster.__setitem__ holds its own lock, so lock=False here).
         store = da.store(sources, targets, lock=False, compute=False)
@@ -1128,9 +1160,17 @@ def run_scene(
             _, tile_stats, (class_hist, class_moments, qa_bit_counts) = dask.compute(
                 store, tile_stats, class_total
             )
+        timings["pass2_s"] = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        _finish_all(writers)  # with cog: converted; all still under temporary names
+        if settings.cog:
+            timings["cog_s"] = time.perf_counter() - t0
+        raster_info = {w.path.stem: (w.units, w.description, w.dtype, w.nodata) for w in writers}
         outputs = {w.path.stem: w.commit() for w in writers}
         writers = []
-        timings["pass2_s"] = time.perf_counter() - t0
+        if zarr_store is not None:
+            outputs[zarr_store.path.name] = zarr_store.commit()
+            zarr_store = None
     except RasterBudgetError:
         raise
     except OSError as err:
@@ -1143,34 +1183,14 @@ def run_scene(
     finally:
         for w in writers:
             w.abort()
+        if zarr_store is not None:
+            zarr_store.abort()
         env.__exit__(None, None, None)
 
     # ---------------- summaries, quick-look, manifest (small, written atomically)
     t0 = time.perf_counter()
     tile_stats = np.array([[np.asarray(s) for s in row] for row in tile_stats])
-    tile_info = []
-    ty, tx = tile_stats.shape[:2]
-    for i in range(ty):
-        for j in range(tx):
-            r0, c0 = i * tile, j * tile
-            r1, c1 = min(r0 + tile, grid.height), min(c0 + tile, grid.width)
-            left, top = _map_xy(grid, r0, c0)
-            right, bottom = _map_xy(grid, r1, c1)
-            tile_info.append(
-                {
-                    "tile_row": i,
-                    "tile_col": j,
-                    "row_off": r0,
-                    "col_off": c0,
-                    "height": r1 - r0,
-                    "width": c1 - c0,
-                    "pixels": (r1 - r0) * (c1 - c0),
-                    "left": left,
-                    "bottom": bottom,
-                    "right": right,
-                    "top": top,
-                }
-            )
+    tile_info = tile_layout(grid, tile)
     tiles = tile_rows(tile_stats, flux_names, tile_info)
     outputs["tiles.csv"] = write_text_atomic(out_dir / "tiles.csv", rows_to_csv(tiles))
     outputs["tiles.geojson"] = write_text_atomic(
@@ -1198,6 +1218,12 @@ def run_scene(
         )
         outputs["edges.png"] = picture.with_name(picture.name + ".partial").replace(picture)
     timings["summaries_s"] = time.perf_counter() - t0
+    if settings.stac:
+        t0 = time.perf_counter()
+        outputs[f"{scene.id}.stac.json"] = _write_stac(
+            scene, grid, raster_info, outputs, out_dir, settings.cog
+        )
+        timings["stac_s"] = time.perf_counter() - t0
     timings["total_s"] = time.perf_counter() - started
 
     qa_counts = {b.name: int(n) for b, n in zip(QA, qa_bit_counts, strict=True)}
@@ -1210,8 +1236,9 @@ def run_scene(
         "inputs": {
             role: {
                 **info,
-                "bytes": Path(info["path"]).stat().st_size,
-                "sha256": sha256_of(Path(info["path"])),
+                # Remote inputs are not fetched a third time just to size and hash them.
+                "bytes": local_size(info["path"]),
+                "sha256": None if is_remote(info["path"]) else sha256_of(Path(info["path"])),
                 "values_on_grid": value_summary.get(role),
             }
             for role, info in described.items()
@@ -1224,6 +1251,7 @@ def run_scene(
             "height": grid.height,
         },
         "chunking": {"chunk_size": chunk, "tile_size": tile, "geotiff_block": block},
+        "formats": {"cog": settings.cog, "stac": settings.stac, "zarr": settings.zarr},
         "parameters": json.loads(scene.model_dump_json()),
         "scene_constants": asdict(constants),
         "scene_facts": facts,
@@ -1260,6 +1288,36 @@ def run_scene(
         out_dir / "manifest.json", json.dumps(manifest, indent=2, default=_json_default)
     )
     return SceneResult(scene_id=scene.id, out_dir=out_dir, outputs=outputs, manifest=manifest)
+
+
+def _finish_all(writers: list[AtomicRaster]) -> None:
+    """Close every writer; COG conversions run side by side (GDAL works outside the GIL)."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    if not any(w.cog for w in writers):
+        for w in writers:
+            w.finish()
+        return
+    with ThreadPoolExecutor(max_workers=min(len(writers), os.cpu_count() or 1)) as pool:
+        list(pool.map(AtomicRaster.finish, writers))  # re-raises the first failure
+
+
+def _write_stac(
+    scene: Scene,
+    grid: Grid,
+    raster_info: dict[str, tuple],
+    outputs: dict[str, Path],
+    out_dir: Path,
+    cog: bool,
+) -> Path:
+    """The scene's STAC Item: the committed outputs, and the manifest written right after it."""
+    from .cloud import stac_item, write_stac_item
+
+    files = [p.name for p in outputs.values() if p.suffix != ".tif"] + ["manifest.json"]
+    item = stac_item(
+        scene.id, scene.acquired_utc, grid, raster_info, files, cog, dt.datetime.now(dt.UTC)
+    )
+    return write_stac_item(item, out_dir / f"{scene.id}.stac.json")
 
 
 def _anchor_xy(grid: Grid, anchor: anchor_method.Anchor) -> dict:

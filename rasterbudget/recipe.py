@@ -36,7 +36,7 @@ class RunSettings(_Strict):
     write_components: bool = False
     quicklook: bool = True
     cog: bool = False  # rasters as Cloud Optimized GeoTIFFs (overviews), same names
-    stac: bool = False  # a STAC Item per scene: <scene id>.stac.json
+    stac: bool = True  # a STAC Item per scene: <scene id>.stac.json (about 15 ms)
     zarr: bool = False  # also a Zarr store per scene: outputs.zarr
 
 
@@ -323,6 +323,79 @@ class Recipe(_Strict):
     path: Path | None = None
 
 
+class ComparisonZones(_Strict):
+    """``[compare.zones]``: polygons (GeoJSON) for per-zone comparison tables."""
+
+    path: str
+    id_property: str = "zone_id"
+
+
+class CompareSettings(_Strict):
+    """``[compare]``: where comparison outputs go and how they are chunked and tiled."""
+
+    out: str = "compare"
+    chunk_size: int = Field(1024, ge=64, le=16384)
+    tile_size: int = Field(256, ge=16, le=16384)
+    zones: ComparisonZones | None = None
+
+
+class Comparison(_Strict):
+    """One ``[[comparison]]``: a raster against a previous one and/or a baseline stack."""
+
+    id: Annotated[str, Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120)]
+    current: str
+    previous: str | None = None
+    baseline: list[str] = []
+
+    @model_validator(mode="after")
+    def _something_to_compare(self) -> Comparison:
+        if self.previous is None and len(self.baseline) < 2:
+            raise ValueError(
+                "give previous (for a difference) and/or at least two baseline rasters "
+                "(for a standardized anomaly)"
+            )
+        return self
+
+
+class CompareRecipe(_Strict):
+    """A comparison recipe: ``[compare]`` settings and one or more ``[[comparison]]``."""
+
+    compare: CompareSettings = CompareSettings()
+    comparison: list[Comparison] = Field(min_length=1)
+    path: Path | None = None
+
+
+def _read_toml(path: Path) -> dict[str, Any]:
+    if not path.is_file():
+        raise RecipeError(f"recipe {path} does not exist; give the path of a .toml recipe file.")
+    try:
+        return tomllib.loads(path.read_text("utf-8"))
+    except tomllib.TOMLDecodeError as err:
+        raise RecipeError(f"recipe {path} is not valid TOML: {err}.") from None
+    except UnicodeDecodeError:
+        raise RecipeError(f"recipe {path} is not a UTF-8 text file.") from None
+
+
+def load_compare_recipe(path: str | Path) -> CompareRecipe:
+    """Read and validate a comparison recipe (TOML); paths stay relative to the file."""
+    path = Path(path)
+    data = _read_toml(path)
+    if "scene" in data:
+        raise RecipeError(
+            f"recipe {path} holds [[scene]] tables: that is a run recipe; give it to "
+            "'rasterbudget run', and to 'rasterbudget compare' a recipe of [[comparison]] tables."
+        )
+    try:
+        recipe = CompareRecipe(**data, path=path.resolve())
+    except ValidationError as err:
+        raise RecipeError(_format_errors(err, str(path), [])) from None
+    ids = [c.id for c in recipe.comparison]
+    repeated = sorted({i for i in ids if ids.count(i) > 1})
+    if repeated:
+        raise RecipeError(f"recipe {path}: comparison id(s) {repeated} used twice.")
+    return recipe
+
+
 def _deep_merge(base: dict, override: dict) -> dict:
     merged = copy.deepcopy(base)
     for key, value in override.items():
@@ -516,6 +589,11 @@ def parse_recipe(
     if not isinstance(defaults, dict):
         raise RecipeError(f"recipe {source}: [defaults] must be a table.")
     scenes = data.get("scene")
+    if scenes is None and "comparison" in data:
+        raise RecipeError(
+            f"recipe {source} holds [[comparison]] tables: that is a comparison recipe; give it "
+            "to 'rasterbudget compare'."
+        )
     if scenes is None:
         raise RecipeError(f"recipe {source}: no [[scene]] table; add at least one scene.")
     if not isinstance(scenes, list):
@@ -549,18 +627,11 @@ def parse_recipe(
 def load_recipe(path: str | Path) -> Recipe:
     """Read a TOML recipe file and validate it."""
     path = Path(path)
-    if not path.is_file():
-        raise RecipeError(f"recipe {path} does not exist; give the path of a .toml recipe file.")
-    try:
-        data = tomllib.loads(path.read_text("utf-8"))
-    except tomllib.TOMLDecodeError as err:
-        raise RecipeError(f"recipe {path} is not valid TOML: {err}.") from None
-    except UnicodeDecodeError:
-        raise RecipeError(f"recipe {path} is not a UTF-8 text file.") from None
+    data = _read_toml(path)
     return parse_recipe(data, source=str(path), path=path.resolve())
 
 
-def resolve_path(recipe: Recipe, value: str) -> Path:
+def resolve_path(recipe: Recipe | CompareRecipe, value: str) -> Path:
     """Resolve a path from the recipe relative to the recipe file's folder."""
     p = Path(value).expanduser()
     if p.is_absolute() or recipe.path is None:

@@ -61,8 +61,8 @@ def _read_small(path: Path, side: int = 500) -> tuple[np.ndarray, object]:
                 out_shape=(max(1, src.height // factor), max(1, src.width // factor)),
                 masked=True,
             )
-            .filled(np.nan)
             .astype(float)
+            .filled(np.nan)
         )
         return data, (src.bounds, src.transform)
 
@@ -225,4 +225,104 @@ def write_report(out_dir: Path, scene_ids: list[str], season_ids: list[str]) -> 
         + "\n".join(sections)
         + "</body></html>"
     )
+    return write_text_atomic(out_dir / "report.html", page)
+
+
+#: Category colours of the drought_category map, dry (brown) to wet (blue); 0 = no value.
+CATEGORY_COLOURS = {
+    1: "#7f3b08",
+    2: "#c2661a",
+    3: "#f1b36a",
+    4: "#e8e8e8",
+    5: "#8ec7e0",
+    6: "#3a8fc4",
+    7: "#08407a",
+}
+
+
+def _comparison_section(folder: Path, summary: dict) -> str:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    from matplotlib.colors import BoundaryNorm, ListedColormap
+    from matplotlib.patches import Patch
+
+    from .compare import CATEGORIES
+
+    parts = [f"<h2>Comparison {html.escape(summary['comparison'])}</h2>"]
+    described = [f"current: {html.escape(summary['current'])}"]
+    if summary.get("previous"):
+        described.append(f"previous: {html.escape(summary['previous'])}")
+    if summary.get("baseline"):
+        described.append(f"baseline: {len(summary['baseline'])} rasters")
+    parts.append("<p>" + "; ".join(described) + "</p>")
+    maps = []
+    if (folder / "difference.tif").is_file():
+        maps.append(("difference", f"difference [{summary.get('units', '')}]", "BrBG", True))
+    if (folder / "standardized_anomaly.tif").is_file():
+        maps.append(("standardized_anomaly", "standardized anomaly [-]", "BrBG", True))
+    if maps:
+        fig, axes = plt.subplots(1, len(maps), figsize=(6 * len(maps), 4.2), squeeze=False)
+        fig.subplots_adjust(left=0.04, right=0.96, bottom=0.05, top=0.9, wspace=0.15)
+        for ax, (name, title, cmap, centred) in zip(axes[0], maps, strict=True):
+            data, (bounds, _) = _read_small(folder / f"{name}.tif")
+            finite = data[np.isfinite(data)]
+            limit = float(np.percentile(np.abs(finite), 98)) if finite.size else 1.0
+            image = ax.imshow(
+                data,
+                cmap=cmap,
+                vmin=-limit if centred else None,
+                vmax=limit if centred else None,
+                extent=(bounds.left, bounds.right, bounds.bottom, bounds.top),
+            )
+            ax.set_title(title)
+            fig.colorbar(image, ax=ax, shrink=0.85)
+        parts.append(_img(_png(fig), "comparison maps"))
+    if (folder / "drought_category.tif").is_file():
+        data, (bounds, _) = _read_small(folder / "drought_category.tif")
+        data[~np.isfinite(data) | (data == 0)] = np.nan
+        colours = ListedColormap([CATEGORY_COLOURS[c] for c in range(1, 8)])
+        fig, ax = plt.subplots(figsize=(8, 4.5))
+        fig.subplots_adjust(left=0.08, right=0.7, bottom=0.08, top=0.92)
+        ax.imshow(
+            data,
+            cmap=colours,
+            norm=BoundaryNorm(np.arange(0.5, 8.5), 7),
+            interpolation="nearest",
+            extent=(bounds.left, bounds.right, bounds.bottom, bounds.top),
+        )
+        ax.set_title("drought category (McKee et al. 1993 classes)")
+        ax.legend(
+            handles=[Patch(color=CATEGORY_COLOURS[c], label=CATEGORIES[c]) for c in range(1, 8)],
+            loc="center left",
+            bbox_to_anchor=(1.02, 0.5),
+        )
+        parts.append(_img(_png(fig), "drought categories"))
+        parts.append(
+            "<h3>Share of area per category</h3><p>Classes of standardized anomalies after "
+            "McKee, Doesken &amp; Kleist (1993): |z| &ge; 2 extreme, 1.5-2 severe, 1-1.5 "
+            "moderate, below 1 near normal; below normal ET reads as dry.</p>"
+            + _table(summary["categories"], ["category", "pixels", "share_of_valid_area"])
+        )
+    if summary.get("zones"):
+        columns = [c for c in summary["zones"][0] if c not in ("pixels",)]
+        parts.append("<h3>Zones</h3>" + _table(summary["zones"], columns))
+    return "\n".join(parts)
+
+
+def write_compare_report(out_dir: Path, results: list[tuple[Path, dict]]) -> Path:
+    """Write ``out_dir/report.html`` for the comparisons of a comparison recipe."""
+    sections = [_comparison_section(folder, summary) for folder, summary in results]
+    page = (
+        "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
+        f"<title>rasterbudget comparison report</title><style>{STYLE}</style></head><body>"
+        "<h1>rasterbudget comparison report</h1>"
+        f"<p class='caution'><b>Caution.</b> {html.escape(CAUTION)} Standardized anomalies "
+        "from a baseline of a few years are themselves uncertain: with n baseline years the "
+        "standard deviation is estimated from n values.</p>"
+        + "\n".join(sections)
+        + "</body></html>"
+    )
+    out_dir.mkdir(parents=True, exist_ok=True)
     return write_text_atomic(out_dir / "report.html", page)

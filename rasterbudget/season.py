@@ -243,6 +243,17 @@ def run_season(recipe, season, settings) -> dict:
             {"season": season.id},
         ),
         AtomicRaster(
+            out_dir / "mean_fraction.tif",
+            grid,
+            "float32",
+            np.nan,
+            block,
+            "mean_fraction",
+            "1",
+            f"season mean {stem}, weighted by daily reference ET (et_season / reference ET)",
+            {"season": season.id},
+        ),
+        AtomicRaster(
             out_dir / "scene_count.tif",
             grid,
             "uint8",
@@ -270,6 +281,7 @@ def run_season(recipe, season, settings) -> dict:
             store = da.store(
                 [
                     blocks[0].astype(np.float32),
+                    (blocks[0] / float(etr.sum())).astype(np.float32),
                     blocks[1].astype(np.uint8),
                     blocks[2].astype(np.uint8),
                 ],

@@ -157,6 +157,32 @@ def class_rows(
     return rows
 
 
+def tile_layout(grid, tile: int) -> list[dict]:
+    """Position, size and map bounds of each ``tile`` x ``tile`` tile of a north-up grid, row by
+    row (the keys of ``tiles.csv`` before the statistics)."""
+    t = grid.transform
+    info = []
+    for i, r0 in enumerate(range(0, grid.height, tile)):
+        for j, c0 in enumerate(range(0, grid.width, tile)):
+            r1, c1 = min(r0 + tile, grid.height), min(c0 + tile, grid.width)
+            info.append(
+                {
+                    "tile_row": i,
+                    "tile_col": j,
+                    "row_off": r0,
+                    "col_off": c0,
+                    "height": r1 - r0,
+                    "width": c1 - c0,
+                    "pixels": (r1 - r0) * (c1 - c0),
+                    "left": t.c + c0 * t.a,
+                    "bottom": t.f + r1 * t.e,
+                    "right": t.c + c1 * t.a,
+                    "top": t.f + r0 * t.e,
+                }
+            )
+    return info
+
+
 def tile_rows(stats: np.ndarray, names: list[str], tile_bounds: list[dict]) -> list[dict]:
     """Rows of ``tiles.csv`` from the (tiles_y, tiles_x, n_variables, 1 + n_stats) array."""
     rows = []

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import io
 import json
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -87,6 +88,35 @@ def zone_block(
     return out
 
 
+def block_masks(
+    geometries: list, boxes: list[tuple[float, float, float, float]], transform, shape
+) -> list[tuple[int, np.ndarray]]:
+    """(zone index, pixel-centre mask) of the zones that touch one block.
+
+    ``boxes`` are the zones' bounds in the grid's CRS (skips the rasterizing of far zones);
+    ``transform`` is the block's own affine transform, ``shape`` its (rows, cols).
+    """
+    from rasterio import features
+    from rasterio.errors import NotGeoreferencedWarning
+
+    height, width = shape
+    left, top = transform.c, transform.f
+    right, bottom = left + width * transform.a, top + height * transform.e
+    masks = []
+    for k, (g, (x0, y0, x1, y1)) in enumerate(zip(geometries, boxes, strict=True)):
+        if x1 < left or x0 > right or y1 < bottom or y0 > top:
+            continue  # this zone misses the block
+        with warnings.catch_warnings():
+            # rasterio's in-memory target warns before its transform is set; the mask is right
+            warnings.simplefilter("ignore", NotGeoreferencedWarning)
+            mask = features.rasterize(
+                [(g, 1)], out_shape=shape, transform=transform, fill=0, dtype="uint8"
+            ).astype(bool)
+        if mask.any():
+            masks.append((k, mask))
+    return masks
+
+
 def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
     """Sum zone_block over the raster's blocks (one pass, bounded memory)."""
     import dask
@@ -104,16 +134,7 @@ def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
         with rasterio.open(raster) as src:
             depth = src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
             transform = src.window_transform(window)
-            left, bottom, right, top = windows.bounds(window, src.transform)
-        masks = []
-        for k, (g, (x0, y0, x1, y1)) in enumerate(zip(geometries, boxes, strict=True)):
-            if x1 < left or x0 > right or y1 < bottom or y0 > top:
-                continue  # this zone misses the block
-            mask = features.rasterize(
-                [(g, 1)], out_shape=depth.shape, transform=transform, fill=0, dtype="uint8"
-            ).astype(bool)
-            if mask.any():
-                masks.append((k, mask))
+        masks = block_masks(geometries, boxes, transform, depth.shape)
         return zone_block(depth, masks, cell_areas(grid, slice(r0, r1)), len(geometries))
 
     parts = [

@@ -14,13 +14,20 @@ from click.testing import CliRunner
 from rasterio.warp import Resampling, calculate_default_transform, reproject
 
 from rasterbudget.cli import main
-from rasterbudget.recipe import load_recipe
+from rasterbudget.errors import RecipeError
+from rasterbudget.recipe import load_compare_recipe, load_recipe
 
 from ..conftest import ROOT, TINY, demo_recipe_dict, write_toml
 
 
 @pytest.mark.parametrize("recipe", sorted((ROOT / "workflows").glob("*.toml")))
 def test_shipped_recipes_are_valid(recipe):
+    if "[[comparison]]" in recipe.read_text():
+        parsed = load_compare_recipe(recipe)
+        assert (recipe.parent / parsed.compare.zones.path).exists()
+        with pytest.raises(RecipeError, match="comparison recipe"):
+            load_recipe(recipe)
+        return
     parsed = load_recipe(recipe)
     for scene in parsed.scene:
         for value in scene.inputs.model_dump().values():
@@ -51,6 +58,9 @@ def test_demo_command_regenerates_the_shipped_rasters(tmp_path):
     for name in shipped:
         with rasterio.open(TINY / name) as a, rasterio.open(tmp_path / name) as b:
             np.testing.assert_allclose(a.read(), b.read(), atol=1e-3, equal_nan=True)
+    tables = [*sorted(p.name for p in TINY.glob("*.csv")), "zones.geojson"]
+    for name in tables:  # the invented station weather of every year, and the zones
+        assert (tmp_path / name).read_text() == (TINY / name).read_text(), name
 
 
 def test_explicit_anchors_are_used_and_recorded(tmp_path, demo_run):

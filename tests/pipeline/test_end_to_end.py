@@ -33,7 +33,7 @@ def read(path):
 def test_every_output_is_written_with_georeferencing_and_units(demo_run, scene):
     folder = demo_run / scene
     names = sorted(p.name for p in folder.iterdir())
-    assert names == sorted(EXPECTED_FILES)
+    assert names == sorted([*EXPECTED_FILES, f"{scene}.stac.json"])  # run.stac is on by default
     with rasterio.open("tiny_rasters/albedo_20260614.tif") as ref:
         crs, transform, shape = ref.crs, ref.transform, ref.shape
     for name, (units, _) in FLUX_OUTPUTS.items():

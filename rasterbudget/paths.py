@@ -1,0 +1,26 @@
+"""Where an input raster lives: a local file, or anything GDAL opens itself (URLs, /vsi paths).
+
+Local paths are checked before a run (exists, readable) so a typo is named at once. Remote
+locations - ``https://...``, ``s3://...``, ``/vsicurl/...``, ``/vsizip/...`` and the like - cannot
+be checked with the file system, so they go to rasterio (GDAL) as given and any failure to open
+them is reported then. They must stay strings: ``pathlib.Path`` folds the ``//`` of a URL into
+``/``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+#: GDAL's virtual file systems all start with this prefix (/vsicurl/, /vsis3/, /vsizip/, ...).
+VSI_PREFIX = "/vsi"
+
+
+def is_remote(location: str | Path) -> bool:
+    """True when ``location`` is a URL or a GDAL virtual-file-system path, not a plain file."""
+    text = str(location)
+    return "://" in text or text.startswith(VSI_PREFIX)
+
+
+def local_size(location: str | Path) -> int | None:
+    """Size in bytes of a local file; None for a remote location (not fetched to measure it)."""
+    return None if is_remote(location) else Path(location).stat().st_size

@@ -1,0 +1,192 @@
+"""The season-series demo end to end: 25 scenes over five summers, season totals, zones, and the
+comparison recipe (difference, standardized anomaly, McKee et al. 1993 categories, zone tables)."""
+
+from __future__ import annotations
+
+import csv
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+import rasterio
+from click.testing import CliRunner
+
+from rasterbudget.cli import main
+from rasterbudget.demo import (
+    SERIES_DRY_YEAR,
+    SERIES_YEARS,
+    series_recipe_text,
+)
+
+ROOT = Path(__file__).resolve().parents[1]
+SERIES_RECIPE = ROOT / "workflows" / "demo_series.toml"
+COMPARE_RECIPE = ROOT / "workflows" / "demo_compare.toml"
+TINY = ROOT / "tiny_rasters"
+
+
+def _absolute(text: str, out: Path, series_out: Path | None = None) -> str:
+    text = text.replace('"../tiny_rasters/', f'"{TINY}/')
+    if series_out is not None:
+        text = text.replace('"../out/demo_series/', f'"{series_out}/')
+    return text.replace('out = "../out/demo_series"', f'out = "{out}"').replace(
+        'out = "../out/demo_compare"', f'out = "{out}"'
+    )
+
+
+@pytest.fixture(scope="session")
+def series_run(tmp_path_factory) -> Path:
+    base = tmp_path_factory.mktemp("series")
+    out = base / "out"
+    recipe = base / "demo_series.toml"
+    recipe.write_text(_absolute(SERIES_RECIPE.read_text(), out))
+    result = CliRunner().invoke(main, ["run", str(recipe), "--quiet"])
+    assert result.exit_code == 0, result.output
+    return out
+
+
+@pytest.fixture(scope="session")
+def compare_run(series_run, tmp_path_factory) -> Path:
+    base = tmp_path_factory.mktemp("compare")
+    out = base / "out"
+    recipe = base / "demo_compare.toml"
+    recipe.write_text(_absolute(COMPARE_RECIPE.read_text(), out, series_run))
+    result = CliRunner().invoke(main, ["compare", str(recipe)])
+    assert result.exit_code == 0, result.output
+    assert "extremely dry" in result.output
+    return out
+
+
+def test_committed_recipe_is_the_generated_one():
+    assert SERIES_RECIPE.read_text() == series_recipe_text()
+
+
+def test_every_scene_and_season_completes(series_run):
+    with (series_run / "batch.csv").open() as f:
+        rows = list(csv.DictReader(f))
+    assert len(rows) == 25 and {r["status"] for r in rows} == {"done"}
+    for year in SERIES_YEARS:
+        folder = series_run / f"summer_{year}"
+        for name in ("et_season", "mean_fraction", "scene_count", "season_qa"):
+            assert (folder / f"{name}.tif").is_file()
+        assert (folder / "zones.csv").is_file()
+    assert (series_run / "report.html").stat().st_size > 100_000
+
+
+def test_cloudy_scene_is_filled_and_flagged(series_run):
+    # 2025-06-30 carries a cloud (NaN in every band): those pixels count four scenes, flagged
+    with rasterio.open(series_run / "summer_2025" / "scene_count.tif") as src:
+        count = src.read(1)
+    with rasterio.open(series_run / "summer_2025" / "season_qa.tif") as src:
+        qa = src.read(1)
+    with rasterio.open(series_run / "kessendry_20250630" / "reference_et_fraction.tif") as src:
+        missing = ~np.isfinite(src.read(1))
+    cloud = missing & (count == 4)
+    assert cloud.sum() > 300  # the cloud, about 40 x 32 pixels at 90 m
+    assert (qa[cloud] & 1).all()
+
+
+def test_mean_fraction_is_season_et_over_reference_et(series_run):
+    folder = series_run / "summer_2026"
+    manifest = json.loads((folder / "manifest.json").read_text())
+    with (
+        rasterio.open(folder / "et_season.tif") as a,
+        rasterio.open(folder / "mean_fraction.tif") as b,
+    ):
+        np.testing.assert_allclose(
+            b.read(1), a.read(1) / manifest["reference_et_total_mm"], rtol=1e-6
+        )
+
+
+def _basin_depth(series_run: Path, year: int, zone: str) -> float:
+    with (series_run / f"summer_{year}" / "zones.csv").open() as f:
+        return next(float(r["mean_depth_mm"]) for r in csv.DictReader(f) if r["zone_id"] == zone)
+
+
+def test_dry_year_uses_less_water_in_both_sub_basins(series_run):
+    for zone in ("basin_west", "basin_east"):
+        depths = {year: _basin_depth(series_run, year, zone) for year in SERIES_YEARS}
+        others = [d for y, d in depths.items() if y != SERIES_DRY_YEAR]
+        assert depths[SERIES_DRY_YEAR] < min(others), (zone, depths)
+    # while the reference ET of the dry summer is the highest
+    totals = {
+        y: json.loads((series_run / f"summer_{y}" / "manifest.json").read_text())[
+            "reference_et_total_mm"
+        ]
+        for y in SERIES_YEARS
+    }
+    assert max(totals, key=totals.get) == SERIES_DRY_YEAR
+
+
+def _read(path: Path) -> np.ndarray:
+    with rasterio.open(path) as src:
+        return src.read(1, masked=True).astype(float).filled(np.nan)
+
+
+def test_anomaly_matches_numpy_on_the_season_stack(series_run, compare_run):
+    current = _read(series_run / f"summer_{SERIES_DRY_YEAR}" / "et_season.tif")
+    stack = np.stack(
+        [
+            _read(series_run / f"summer_{y}" / "et_season.tif")
+            for y in SERIES_YEARS
+            if y != SERIES_DRY_YEAR
+        ]
+    )
+    expected = (current - np.nanmean(stack, axis=0)) / np.nanstd(stack, axis=0, ddof=1)
+    z = _read(compare_run / "summer_2025_et_anomaly" / "standardized_anomaly.tif")
+    np.testing.assert_allclose(z, expected.astype(np.float32), rtol=1e-5, atol=1e-5)
+
+
+def test_category_shares_add_up_and_the_dry_year_reads_dry(compare_run):
+    summary = json.loads((compare_run / "summer_2025_et_anomaly" / "compare.json").read_text())
+    shares = {c["category"]: c["share_of_valid_area"] for c in summary["categories"]}
+    assert sum(shares.values()) == pytest.approx(1.0)
+    dry = shares["extremely dry"] + shares["severely dry"] + shares["moderately dry"]
+    assert dry > 0.5
+    basin = next(z for z in summary["zones"] if z["zone_id"] == "basin_west")
+    assert basin["standardized_anomaly_mean"] < -1.0
+    zone_shares = [v for k, v in basin.items() if k.startswith("share_")]
+    assert sum(zone_shares) == pytest.approx(1.0)
+
+
+def test_zone_difference_against_an_independent_box_average(series_run, compare_run):
+    # The zones are rectangles on a projected grid: pixels whose centres fall inside, by index.
+    zones = json.loads((TINY / "zones.geojson").read_text())["features"]
+    field = next(z for z in zones if z["properties"]["zone_id"] == "field_B")
+    (x0, y0), (x1, y1) = (
+        field["geometry"]["coordinates"][0][0],
+        field["geometry"]["coordinates"][0][2],
+    )
+    path = compare_run / "summer_2025_vs_2024" / "difference.tif"
+    with rasterio.open(path) as src:
+        t = src.transform
+        diff = src.read(1)
+    cols = t.c + (np.arange(diff.shape[1]) + 0.5) * t.a
+    rows = t.f + (np.arange(diff.shape[0]) + 0.5) * t.e
+    inside = ((rows > y0) & (rows < y1))[:, None] & ((cols > x0) & (cols < x1))[None, :]
+    expected = float(diff[inside].mean())  # equal cell areas on a projected grid
+    with (compare_run / "summer_2025_vs_2024" / "zones.csv").open() as f:
+        row = next(r for r in csv.DictReader(f) if r["zone_id"] == "field_B")
+    assert int(row["pixels"]) == inside.sum()
+    assert float(row["difference_mean"]) == pytest.approx(expected, rel=1e-5)
+    area = inside.sum() * abs(t.a * t.e)
+    assert float(row["difference_volume_m3"]) == pytest.approx(expected / 1000 * area, rel=1e-5)
+
+
+def test_comparison_tiles_match_numpy(compare_run):
+    folder = compare_run / "july_2026_vs_2025"
+    diff = _read(folder / "difference.tif")
+    with (folder / "tiles.csv").open() as f:
+        tiles = list(csv.DictReader(f))
+    tile = tiles[5]
+    r0, c0 = int(tile["row_off"]), int(tile["col_off"])
+    block = diff[r0 : r0 + int(tile["height"]), c0 : c0 + int(tile["width"])]
+    values = block[np.isfinite(block)]
+    assert float(tile["difference_mean"]) == pytest.approx(values.mean(), rel=1e-6)
+    assert float(tile["difference_p90"]) == pytest.approx(np.percentile(values, 90), rel=1e-6)
+
+
+def test_comparison_report_is_written(compare_run):
+    page = (compare_run / "report.html").read_text()
+    assert page.count("<h2>Comparison") == 4
+    assert "McKee" in page and "licensed" in page
