@@ -25,6 +25,7 @@ from .outputs import PARTIAL_SUFFIX, write_text_atomic
 from .qa import QA, QA_DESCRIPTIONS
 
 ZARR_NAME = "outputs.zarr"
+ZARR_FORMAT = 2  # see AtomicZarr
 #: CF grid-mapping variable that carries the CRS (the name GDAL and xarray tools look for).
 GRID_MAPPING = "spatial_ref"
 #: Edge points per side of the footprint: curved edges in lon/lat (e.g. UTM) stay accurate.
@@ -118,12 +119,17 @@ def require_zarr() -> None:
 
 
 class AtomicZarr:
-    """A Zarr (v3) group of 2-D arrays on the scene grid, built under a temporary name.
+    """A Zarr group of 2-D arrays on the scene grid, built under a temporary name.
 
     ``arrays`` are the ``da.store`` targets: chunks equal the run's chunks, so each dask block
     fills whole Zarr chunks and no two tasks write the same chunk (no lock needed). Coordinates
     (pixel centres), the CRS as WKT and CF attributes (units, long_name, grid_mapping, QA flag
-    meanings) are written at once; ``commit`` renames the folder, ``abort`` removes it.
+    meanings) are written at once; ``commit`` consolidates the metadata (one read for a remote
+    reader) and renames the folder, ``abort`` removes it.
+
+    Zarr format 2: GDAL 3.10 (the rasterio wheels') cannot read format 3's ``bytes`` codec, while
+    format 2 opens in GDAL - with its CRS and grid, from ``_CRS`` and the x/y arrays - as well as
+    in xarray and every zarr-python. Dimension names are the ``_ARRAY_DIMENSIONS`` attribute.
     """
 
     def __init__(
@@ -135,14 +141,27 @@ class AtomicZarr:
         attributes: dict,
     ) -> None:
         """``variables``: name -> (dtype, units, long_name); ``attributes`` go on the group."""
-        import zarr
-
         self.path = Path(path)
         self.partial = self.path.with_name(self.path.name + PARTIAL_SUFFIX)
         shutil.rmtree(self.partial, ignore_errors=True)
-        wkt = grid.crs.to_wkt()
-        group = zarr.open_group(self.partial, mode="w", zarr_format=3)
-        group.attrs.update({**attributes, "crs_wkt": wkt})
+        try:
+            self.arrays = self._create(grid, chunk, variables, attributes)
+        except BaseException:
+            self.abort()  # nothing half-made is left if creating the store fails
+            raise
+
+    def _create(
+        self, grid: Grid, chunk: int, variables: dict[str, tuple[str, str, str]], attributes: dict
+    ) -> dict:
+        import pyproj
+        import zarr
+
+        # CF grid mapping from pyproj (grid_mapping_name, its parameters, crs_wkt as WKT2), plus
+        # GDAL's WKT and geotransform, which GDAL-based readers look for.
+        cf = pyproj.CRS.from_wkt(grid.crs.to_wkt()).to_cf()
+        gdal_crs = {"wkt": grid.crs.to_wkt()}  # GDAL's Zarr driver reads the CRS from _CRS
+        group = zarr.open_group(self.partial, mode="w", zarr_format=ZARR_FORMAT)
+        group.attrs.update({**attributes, "crs_wkt": cf["crs_wkt"]})
         x, y = pixel_centres(grid)
         x_attrs, y_attrs = coordinate_attributes(grid)
         for name, values, attrs in (("x", x, x_attrs), ("y", y, y_attrs)):
@@ -151,8 +170,7 @@ class AtomicZarr:
                 shape=values.shape,
                 dtype="float64",
                 chunks=values.shape,
-                dimension_names=(name,),
-                attributes=attrs,
+                attributes={**attrs, "_ARRAY_DIMENSIONS": [name]},
             )
             coord[:] = values
         t = grid.transform
@@ -162,32 +180,41 @@ class AtomicZarr:
             dtype="int32",
             fill_value=0,
             attributes={
-                "crs_wkt": wkt,
-                "spatial_ref": wkt,
+                **cf,
+                "_ARRAY_DIMENSIONS": [],
+                "spatial_ref": grid.crs.to_wkt(),
                 # GDAL order: origin x, pixel width, row rotation, origin y, column rotation, height
                 "GeoTransform": " ".join(repr(v) for v in (t.c, t.a, t.b, t.f, t.d, t.e)),
             },
         )
-        self.arrays = {}
+        arrays = {}
         for name, (dtype, units, long_name) in variables.items():
             is_float = np.dtype(dtype).kind == "f"
-            attrs = {"long_name": long_name, "grid_mapping": GRID_MAPPING}
+            attrs = {
+                "long_name": long_name,
+                "grid_mapping": GRID_MAPPING,
+                "_ARRAY_DIMENSIONS": ["y", "x"],
+                "_CRS": gdal_crs,
+            }
             if is_float:
                 attrs["units"] = units
             else:  # the QA bit mask: flags, not a physical quantity
                 attrs |= qa_flag_attributes()
-            self.arrays[name] = group.create_array(
+            arrays[name] = group.create_array(
                 name,
                 shape=(grid.height, grid.width),
                 dtype=dtype,
                 chunks=(min(chunk, grid.height), min(chunk, grid.width)),
                 fill_value=np.nan if is_float else 0,
-                dimension_names=("y", "x"),
                 attributes=attrs,
             )
+        return arrays
 
     def commit(self) -> Path:
         """Rename the finished store to its final name, replacing a previous run's store."""
+        import zarr
+
+        zarr.consolidate_metadata(self.partial)
         if self.path.exists():
             # Move the old store aside under a .partial name (cleared by remove_stale_partials if
             # we stop here), so the final name is never a half-replaced folder.
@@ -228,7 +255,7 @@ AUXILIARY_ASSETS: dict[str, tuple[str, str, list[str], str]] = {
         "zarr",
         "application/vnd+zarr",
         ["data"],
-        "all float outputs and qa_flags as one Zarr (v3) store",
+        "all float outputs and qa_flags as one Zarr (format 2) store",
     ),
 }
 

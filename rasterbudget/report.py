@@ -202,15 +202,36 @@ def _season_section(folder: Path) -> str:
 
 STYLE = """body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}
 img{max-width:100%;display:block;margin:0.5em 0}
-table{border-collapse:collapse;font-size:0.85em;margin:0.5em 0}
+table{border-collapse:collapse;font-size:0.85em;margin:0.5em 0;display:block;overflow-x:auto}
 td,th{border:1px solid #ccc;padding:2px 6px;text-align:right}
 .caution{background:#fff4e0;border-left:4px solid #d08020;padding:0.6em 1em}"""
+
+
+SECTION_CACHE = ".report_sections"  # folder under OUT: one rendered section per scene
+
+
+def _cached_scene_section(folder: Path) -> str:
+    """The scene's report section, rendered once per scene run.
+
+    A skipped scene of a batch keeps its section (figures are most of a report's cost); a
+    redone scene rewrites its manifest, which makes the cached section stale.
+    """
+    cache = folder.parent / SECTION_CACHE / f"{folder.name}.html"
+    manifest = folder / "manifest.json"
+    if cache.is_file() and cache.stat().st_mtime_ns >= manifest.stat().st_mtime_ns:
+        return cache.read_text("utf-8")
+    section = _scene_section(folder)
+    cache.parent.mkdir(exist_ok=True)
+    write_text_atomic(cache, section)
+    return section
 
 
 def write_report(out_dir: Path, scene_ids: list[str], season_ids: list[str]) -> Path:
     """Write ``out_dir/report.html`` for the given (complete) scene and season folders."""
     sections = [
-        _scene_section(out_dir / s) for s in scene_ids if (out_dir / s / "manifest.json").is_file()
+        _cached_scene_section(out_dir / s)
+        for s in scene_ids
+        if (out_dir / s / "manifest.json").is_file()
     ]
     sections += [
         _season_section(out_dir / s)

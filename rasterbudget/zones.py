@@ -20,6 +20,10 @@ import numpy as np
 
 from .errors import RecipeError
 
+# rasterio's in-memory rasterize target warns before its transform is set (the masks are right).
+# A filter for that module only: catch_warnings() is not thread-safe under dask's threads.
+warnings.filterwarnings("ignore", message="Dataset has no geotransform", module="rasterio.features")
+
 CUBIC_METRES_PER_ACRE_FOOT = 1233.48183754752  # 43,560 ft3 x 0.3048^3 m3 per ft3
 
 
@@ -97,7 +101,6 @@ def block_masks(
     ``transform`` is the block's own affine transform, ``shape`` its (rows, cols).
     """
     from rasterio import features
-    from rasterio.errors import NotGeoreferencedWarning
 
     height, width = shape
     left, top = transform.c, transform.f
@@ -106,12 +109,9 @@ def block_masks(
     for k, (g, (x0, y0, x1, y1)) in enumerate(zip(geometries, boxes, strict=True)):
         if x1 < left or x0 > right or y1 < bottom or y0 > top:
             continue  # this zone misses the block
-        with warnings.catch_warnings():
-            # rasterio's in-memory target warns before its transform is set; the mask is right
-            warnings.simplefilter("ignore", NotGeoreferencedWarning)
-            mask = features.rasterize(
-                [(g, 1)], out_shape=shape, transform=transform, fill=0, dtype="uint8"
-            ).astype(bool)
+        mask = features.rasterize(
+            [(g, 1)], out_shape=shape, transform=transform, fill=0, dtype="uint8"
+        ).astype(bool)
         if mask.any():
             masks.append((k, mask))
     return masks

@@ -80,3 +80,31 @@ def tiny_copy(tmp_path) -> Path:
     target = tmp_path / "tiny"
     shutil.copytree(TINY, target)
     return target
+
+
+def render_in_chromium(page: Path, workdir: Path) -> Path:
+    """Screenshot an HTML file in headless Chromium (no network); returns the PNG."""
+    import subprocess
+
+    shot = workdir / f"{page.stem}.png"
+    subprocess.run(
+        [
+            "chromium",
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            f"--user-data-dir={workdir / 'profile'}",
+            "--window-size=1200,2000",
+            f"--screenshot={shot}",
+            page.as_uri(),
+        ],
+        check=True,
+        timeout=120,
+        capture_output=True,
+    )
+    return shot

@@ -282,7 +282,8 @@ def test_zarr_store_holds_the_geotiff_values(cloud_run, scene):
     for name in sorted(expected_vars):
         array = group[name]
         assert array.shape == (height, width) and array.chunks == (CHUNK, CHUNK)
-        assert array.metadata.dimension_names == ("y", "x")
+        assert array.metadata.zarr_format == 2
+        assert array.attrs["_ARRAY_DIMENSIONS"] == ["y", "x"]
         assert array.attrs["grid_mapping"] == "spatial_ref"
         with rasterio.open(folder / f"{name}.tif") as src:
             tif = src.read(1)
@@ -299,14 +300,29 @@ def test_zarr_store_holds_the_geotiff_values(cloud_run, scene):
     np.testing.assert_allclose(y, transform.f + (np.arange(height) + 0.5) * transform.e)
     assert group["x"].attrs["units"] == "m"
     assert CRS.from_wkt(group.attrs["crs_wkt"]) == crs
-    assert CRS.from_wkt(group["spatial_ref"].attrs["crs_wkt"]) == crs
+    mapping = group["spatial_ref"].attrs
+    assert CRS.from_wkt(mapping["crs_wkt"]) == crs == CRS.from_wkt(mapping["spatial_ref"])
+    assert mapping["grid_mapping_name"] == "transverse_mercator"
+    assert mapping["longitude_of_central_meridian"] == -105.0  # UTM zone 13
     assert group.attrs["scene_id"] == scene
     assert not list(folder.glob("*.partial"))
 
 
+def test_zarr_store_opens_in_gdal_with_its_grid(cloud_run):
+    store = cloud_run / SCENE / "outputs.zarr"
+    assert (store / ".zmetadata").is_file()  # consolidated: one read for a remote reader
+    with (
+        rasterio.open(f'ZARR:"{store}":/latent_heat_flux') as zarr_band,
+        rasterio.open(cloud_run / SCENE / "latent_heat_flux.tif") as tif,
+    ):
+        assert zarr_band.crs == tif.crs
+        assert zarr_band.transform.almost_equals(tif.transform)
+        np.testing.assert_array_equal(zarr_band.read(1), tif.read(1))
+
+
 def test_zarr_store_opens_as_a_labelled_dataset(cloud_run):
     xr = pytest.importorskip("xarray")
-    ds = xr.open_zarr(cloud_run / SCENE / "outputs.zarr", consolidated=False)
+    ds = xr.open_zarr(cloud_run / SCENE / "outputs.zarr")
     assert ds["et_daily"].dims == ("y", "x")
     assert ds["et_daily"].attrs["units"] == "mm d-1"
     with rasterio.open(cloud_run / SCENE / "et_daily.tif") as src:
@@ -464,3 +480,21 @@ def test_an_unopenable_remote_input_gets_a_clear_error(tmp_path):
         from rasterbudget.grid import target_grid
 
         target_grid(location)
+
+
+def test_zarr_is_filled_by_the_same_compute_without_recomputing_blocks(tmp_path, monkeypatch):
+    original = pipeline.pass2_block
+    calls = []
+
+    def counting(ctx, params, loc):
+        calls.append(loc)
+        return original(ctx, params, loc)
+
+    monkeypatch.setattr(pipeline, "pass2_block", counting)
+    recipe = parse_recipe(demo_recipe_dict())
+    settings = pipeline.RunSettings(
+        out_dir=tmp_path / "out", chunk_size=128, tile_size=100, zarr=True, quicklook=False
+    )
+    pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)
+    # 300 x 400 pixels in 128-pixel chunks: 3 x 4 blocks, each computed once for every output
+    assert len(calls) == 12 and len(set(calls)) == 12

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import re
 import shutil
-import subprocess
 from html.parser import HTMLParser
 
 import pytest
@@ -12,7 +11,7 @@ from click.testing import CliRunner
 
 from rasterbudget.cli import main
 
-from .conftest import ROOT
+from .conftest import ROOT, render_in_chromium
 
 
 class _Collector(HTMLParser):
@@ -64,25 +63,5 @@ def test_report_is_self_contained_with_every_section(report):
 
 @pytest.mark.skipif(shutil.which("chromium") is None, reason="headless Chromium not installed")
 def test_report_renders_in_headless_chromium(report, tmp_path):
-    shot = tmp_path / "report.png"
-    subprocess.run(
-        [
-            "chromium",
-            "--headless",
-            "--no-sandbox",
-            "--disable-gpu",
-            "--disable-quic",
-            "--no-first-run",
-            "--disable-background-networking",
-            "--disable-component-update",
-            "--disable-sync",
-            f"--user-data-dir={tmp_path / 'profile'}",
-            "--window-size=1200,2000",
-            f"--screenshot={shot}",
-            report.as_uri(),
-        ],
-        check=True,
-        timeout=120,
-        capture_output=True,
-    )
+    shot = render_in_chromium(report, tmp_path)
     assert shot.stat().st_size > 50_000  # a page of maps and charts, not a blank one

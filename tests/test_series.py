@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import csv
 import json
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -18,6 +19,8 @@ from rasterbudget.demo import (
     SERIES_YEARS,
     series_recipe_text,
 )
+
+from .conftest import render_in_chromium
 
 ROOT = Path(__file__).resolve().parents[1]
 SERIES_RECIPE = ROOT / "workflows" / "demo_series.toml"
@@ -190,3 +193,12 @@ def test_comparison_report_is_written(compare_run):
     page = (compare_run / "report.html").read_text()
     assert page.count("<h2>Comparison") == 4
     assert "McKee" in page and "licensed" in page
+
+
+@pytest.mark.skipif(shutil.which("chromium") is None, reason="headless Chromium not installed")
+def test_comparison_report_renders_in_headless_chromium(compare_run, tmp_path):
+    shot = render_in_chromium(compare_run / "report.html", tmp_path)
+    with rasterio.open(shot) as png:  # the screenshot is a page of maps, not a blank one
+        pixels = png.read()
+    assert pixels.shape[1:] == (2000, 1200)
+    assert pixels.std() > 20
