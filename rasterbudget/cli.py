@@ -94,7 +94,9 @@ def run(
     Each scene folder gets one GeoTIFF per variable (net_radiation, ground_heat_flux,
     sensible_heat_flux, latent_heat_flux in W m-2; evaporative_fraction; et_hourly in mm h-1;
     et_daily in mm d-1), qa_flags.tif (bits in the README), tiles.csv, tiles.geojson,
-    classes.csv, quicklook.png and manifest.json (inputs, parameters, anchors, timings).
+    classes.csv, quicklook.png, <scene id>.stac.json (a STAC Item) and manifest.json (inputs,
+    parameters, anchors, timings). [run] cog = true makes the GeoTIFFs Cloud Optimized;
+    [run] zarr = true adds outputs.zarr.
 
     \b
     Examples:
@@ -358,6 +360,59 @@ def demo(out_dir: Path, debug: bool) -> None:
         files += [make_daily_weather(out_dir, year) for year in SERIES_YEARS]
         files.append(make_zones(out_dir))
         click.echo(f"wrote {len(files)} files to {out_dir}")
+    except RasterBudgetError as err:
+        _fail(err, debug)
+
+
+@main.command()
+@click.option(
+    "--size",
+    type=click.IntRange(256, 65536),
+    default=4096,
+    show_default=True,
+    help="Edge of the square synthetic scene [pixels].",
+)
+@click.option(
+    "--chunk-size",
+    type=click.IntRange(64, 16384),
+    default=1024,
+    show_default=True,
+    help="Chunk edge of the pipeline and the floor.",
+)
+@click.option("--repeat", type=click.IntRange(1, 20), default=3, show_default=True)
+@click.option(
+    "--whole-array/--no-whole-array",
+    default=None,
+    help="Also time the whole-array version (default: only up to 4096 pixels on a side).",
+)
+@click.option(
+    "--keep",
+    type=click.Path(file_okay=False, path_type=Path),
+    help="Keep the synthetic scene and outputs in this folder (default: a temporary one).",
+)
+@debug_option
+def bench(
+    size: int, chunk_size: int, repeat: int, whole_array: bool | None, keep: Path | None, debug
+) -> None:
+    """Time the pipeline against the raw read/write floor on a synthetic scene.
+
+    Prints a table and, last, one JSON line: wall seconds, megapixels per second and peak
+    resident memory of the floor (read every input, write every output, no physics), the
+    pipeline, and the whole-array version; and the ratios pipeline / floor and whole-array /
+    pipeline. See the README's Performance section for how to read it.
+
+    \b
+    Example:
+      rasterbudget bench --size 4096 --repeat 3
+    """
+    import json
+
+    try:
+        from .bench import format_table, run_bench
+
+        result = run_bench(size, chunk_size, repeat, whole_array, keep=keep)
+        click.echo(format_table(result))
+        click.echo(json.dumps(result))
     except RasterBudgetError as err:
         _fail(err, debug)
 
