@@ -120,7 +120,7 @@ def make_synthetic_scene(folder: Path, size: int, tiny_dir: Path) -> Path:
                 strip = data[np.ix_(rows[r0:r1], cols)]
                 dst.write(strip, 1, window=Window(0, r0, size, r1 - r0))
     recipe = folder / "bench.toml"
-    recipe.write_text(_RECIPE.format(size=size, chunk=1024))
+    recipe.write_text(_RECIPE.format(size=size, chunk=512))
     return recipe
 
 
@@ -241,7 +241,7 @@ def _run_child(phase: str, recipe: Path, out: Path, chunk: int) -> dict:
 
 def run_bench(
     size: int,
-    chunk: int = 1024,
+    chunk: int = 512,
     repeat: int = 3,
     whole_array: bool | None = None,
     max_whole_array: int = 4096,

@@ -77,6 +77,16 @@ def main() -> None:
     is_flag=True,
     help="Redo every scene, also those whose outputs are complete and up to date.",
 )
+@click.option(
+    "--scheduler",
+    metavar="ADDRESS",
+    help="Run on an existing dask.distributed scheduler, e.g. tcp://10.0.0.5:8786.",
+)
+@click.option(
+    "--workers",
+    type=click.IntRange(1, 1024),
+    help="Start a local dask.distributed cluster of this many worker processes.",
+)
 @debug_option
 def run(
     recipe: Path,
@@ -87,6 +97,8 @@ def run(
     no_quicklook: bool,
     quiet: bool,
     force: bool,
+    scheduler: str | None,
+    workers: int | None,
     debug: bool,
 ) -> None:
     """Run every scene of RECIPE and write its outputs to OUT/<scene id>/.
@@ -103,93 +115,117 @@ def run(
       rasterbudget run workflows/demo.toml
       rasterbudget run my_region.toml --out results --chunk-size 512
     """
+    import contextlib
+
     try:
-        from .pipeline import RunSettings
-        from .recipe import resolve_path
+        if scheduler is not None and workers is not None:
+            raise RasterBudgetError("give --scheduler or --workers, not both.")
+        cluster = contextlib.nullcontext()
+        if scheduler is not None or workers is not None:
+            from .cluster import dask_cluster
 
-        parsed, table = _recipe_and_classes(recipe)
-        settings = RunSettings(
-            out_dir=out_dir if out_dir is not None else resolve_path(parsed, parsed.run.out),
-            chunk_size=chunk_size or parsed.run.chunk_size,
-            tile_size=tile_size or parsed.run.tile_size,
-            write_components=parsed.run.write_components if components is None else components,
-            quicklook=parsed.run.quicklook and not no_quicklook,
-            progress=not quiet and sys.stderr.isatty(),
-            cog=parsed.run.cog,
-            stac=parsed.run.stac,
-            zarr=parsed.run.zarr,
-        )
-        from .batch import run_batch
-
-        def report(outcome) -> None:
-            if quiet and outcome.status != "failed":
-                return
-            if outcome.status == "failed":
-                if len(parsed.scene) > 1:  # a single scene's error is the one final line
-                    click.echo(f"{outcome.scene_id}: FAILED: {outcome.message}", err=True)
-                return
-            m = outcome.manifest
-            if m.get("sensible_heat_method") == "edges":
-                e = m["edges"]
-                how = (
-                    f"dry edge {e['dry_intercept']:.1f} {e['dry_slope']:+.1f} albedo K, "
-                    f"wet edge {e['wet_intercept']:.1f} {e['wet_slope']:+.1f} albedo K"
-                )
-            else:
-                a = m["anchors"]
-                how = (
-                    f"cold anchor {a['cold']['surface_temperature']:.2f} K, "
-                    f"hot anchor {a['hot']['surface_temperature']:.2f} K"
-                )
-            verb = "done" if outcome.status == "done" else "skipped (complete, up to date)"
-            click.echo(
-                f"{outcome.scene_id}: {verb} in {outcome.seconds:.1f} s -> "
-                f"{settings.out_dir / outcome.scene_id}  ({how})"
-            )
-
-        outcomes = run_batch(parsed, table, settings, report, force=force)
-        failed = [o for o in outcomes if o.status == "failed"]
-        zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
-        if parsed.season:
-            from .season import run_season
-
-            for season in parsed.season:
-                done = run_season(parsed, season, settings)
-                if not quiet:
-                    click.echo(
-                        f"{season.id}: season {season.start} to {season.end} from "
-                        f"{len(done['scenes'])} scenes, mean {done['mean_et_season_mm']:.0f} mm "
-                        f"(reference ET {done['reference_et_total_mm']:.0f} mm) -> "
-                        f"{settings.out_dir / season.id}"
-                    )
-        if parsed.zones is not None:
-            from .zones import run_zones
-
-            zone_targets += [(s.id, "et_season") for s in parsed.season]
-            for path in run_zones(parsed, settings, zone_targets):
-                if not quiet:
-                    click.echo(f"zones: {path}")
-        if settings.quicklook:
-            from .report import write_report
-
-            report_path = write_report(
-                settings.out_dir,
-                [o.scene_id for o in outcomes if o.status != "failed"],
-                [s.id for s in parsed.season],
-            )
-            if not quiet:
-                click.echo(f"report: {report_path}")
-        if len(outcomes) == 1 and failed:
-            raise RasterBudgetError(failed[0].message)
-        if failed:
-            click.echo(
-                f"rasterbudget: {len(failed)} of {len(outcomes)} scenes failed "
-                f"(see {settings.out_dir / 'batch.csv'})",
-                err=True,
-            )
-            sys.exit(1)
+            cluster = dask_cluster(scheduler, workers)
+        with cluster:
+            _run(recipe, out_dir, chunk_size, tile_size, components, no_quicklook, quiet, force)
     except RasterBudgetError as err:
         _fail(err, debug)
+
+
+def _run(
+    recipe: Path,
+    out_dir: Path | None,
+    chunk_size: int | None,
+    tile_size: int | None,
+    components: bool | None,
+    no_quicklook: bool,
+    quiet: bool,
+    force: bool,
+) -> None:
+    """The run command's work (inside the chosen dask scheduler)."""
+    from .pipeline import RunSettings
+    from .recipe import resolve_path
+
+    parsed, table = _recipe_and_classes(recipe)
+    settings = RunSettings(
+        out_dir=out_dir if out_dir is not None else resolve_path(parsed, parsed.run.out),
+        chunk_size=chunk_size or parsed.run.chunk_size,
+        tile_size=tile_size or parsed.run.tile_size,
+        write_components=parsed.run.write_components if components is None else components,
+        quicklook=parsed.run.quicklook and not no_quicklook,
+        progress=not quiet and sys.stderr.isatty(),
+        cog=parsed.run.cog,
+        stac=parsed.run.stac,
+        zarr=parsed.run.zarr,
+    )
+    from .batch import run_batch
+
+    def report(outcome) -> None:
+        if quiet and outcome.status != "failed":
+            return
+        if outcome.status == "failed":
+            if len(parsed.scene) > 1:  # a single scene's error is the one final line
+                click.echo(f"{outcome.scene_id}: FAILED: {outcome.message}", err=True)
+            return
+        m = outcome.manifest
+        if m.get("sensible_heat_method") == "edges":
+            e = m["edges"]
+            how = (
+                f"dry edge {e['dry_intercept']:.1f} {e['dry_slope']:+.1f} albedo K, "
+                f"wet edge {e['wet_intercept']:.1f} {e['wet_slope']:+.1f} albedo K"
+            )
+        else:
+            a = m["anchors"]
+            how = (
+                f"cold anchor {a['cold']['surface_temperature']:.2f} K, "
+                f"hot anchor {a['hot']['surface_temperature']:.2f} K"
+            )
+        verb = "done" if outcome.status == "done" else "skipped (complete, up to date)"
+        click.echo(
+            f"{outcome.scene_id}: {verb} in {outcome.seconds:.1f} s -> "
+            f"{settings.out_dir / outcome.scene_id}  ({how})"
+        )
+
+    outcomes = run_batch(parsed, table, settings, report, force=force)
+    failed = [o for o in outcomes if o.status == "failed"]
+    zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
+    if parsed.season:
+        from .season import run_season
+
+        for season in parsed.season:
+            done = run_season(parsed, season, settings)
+            if not quiet:
+                click.echo(
+                    f"{season.id}: season {season.start} to {season.end} from "
+                    f"{len(done['scenes'])} scenes, mean {done['mean_et_season_mm']:.0f} mm "
+                    f"(reference ET {done['reference_et_total_mm']:.0f} mm) -> "
+                    f"{settings.out_dir / season.id}"
+                )
+    if parsed.zones is not None:
+        from .zones import run_zones
+
+        zone_targets += [(s.id, "et_season") for s in parsed.season]
+        for path in run_zones(parsed, settings, zone_targets):
+            if not quiet:
+                click.echo(f"zones: {path}")
+    if settings.quicklook:
+        from .report import write_report
+
+        report_path = write_report(
+            settings.out_dir,
+            [o.scene_id for o in outcomes if o.status != "failed"],
+            [s.id for s in parsed.season],
+        )
+        if not quiet:
+            click.echo(f"report: {report_path}")
+    if len(outcomes) == 1 and failed:
+        raise RasterBudgetError(failed[0].message)
+    if failed:
+        click.echo(
+            f"rasterbudget: {len(failed)} of {len(outcomes)} scenes failed "
+            f"(see {settings.out_dir / 'batch.csv'})",
+            err=True,
+        )
+        sys.exit(1)
 
 
 @main.command()
@@ -227,7 +263,7 @@ def run(
 @click.option(
     "--chunk-size",
     type=click.IntRange(64, 16384),
-    default=1024,
+    default=512,
     show_default=True,
     help="Edge of the blocks processed at once.",
 )
@@ -375,7 +411,7 @@ def demo(out_dir: Path, debug: bool) -> None:
 @click.option(
     "--chunk-size",
     type=click.IntRange(64, 16384),
-    default=1024,
+    default=512,
     show_default=True,
     help="Chunk edge of the pipeline and the floor.",
 )

@@ -328,7 +328,7 @@ def run_compare(
             w.commit()
     finally:
         for w in writers:
-            if not w.dataset.closed:
+            if not w.committed:
                 w.abort()
     summary: dict = {
         "comparison": label or out_dir.name,

@@ -130,7 +130,9 @@ class AtomicRaster:
         self.cog = cog
         self.block_size = block_size
         self._ready: Path | None = None
+        self.committed = False
         self.lock = threading.Lock()
+        self._shape = (grid.height, grid.width)
         self.dataset = rasterio.open(
             self.partial,
             "w",
@@ -151,20 +153,46 @@ class AtomicRaster:
         self.nodata = nodata
         self.units = units
         self.description = description
+        from .cluster import distributed_client
+
+        # Under dask.distributed the windows are written by worker processes: the file is
+        # created here, closed, and each write reopens it in update mode under a lock that
+        # holds across processes (one GDAL writer per file at a time).
+        self.shared = distributed_client() is not None
+        if self.shared:
+            self.dataset.close()
 
     @property
     def shape(self) -> tuple[int, int]:
-        return self.dataset.height, self.dataset.width
+        return self._shape
+
+    def __getstate__(self) -> dict:
+        # Sent to worker processes (shared mode): paths and metadata, no open handle or lock.
+        state = self.__dict__.copy()
+        state["dataset"] = state["lock"] = None
+        return state
+
+    def __setstate__(self, state: dict) -> None:
+        self.__dict__.update(state)
+        self.lock = threading.Lock()
 
     def __setitem__(self, key: tuple[slice, slice], value: np.ndarray) -> None:
         rows, cols = key
         window = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
-        with self.lock:
-            self.dataset.write(np.asarray(value, dtype=self.dtype), 1, window=window)
+        data = np.asarray(value, dtype=self.dtype)
+        if not self.shared:
+            with self.lock:
+                self.dataset.write(data, 1, window=window)
+            return
+        from distributed import Lock
+
+        with Lock(f"rasterbudget-write-{self.partial}"), rasterio.open(self.partial, "r+") as dst:
+            dst.write(data, 1, window=window)
 
     def finish(self) -> None:
         """Close the file; with ``cog``, convert it to a COG under its temporary name."""
-        self.dataset.close()
+        if self.dataset is not None and not self.dataset.closed:
+            self.dataset.close()
         if not self.cog:
             self._ready = self.partial
             return
@@ -177,10 +205,11 @@ class AtomicRaster:
         if self._ready is None:
             self.finish()
         os.replace(self._ready, self.path)
+        self.committed = True
         return self.path
 
     def abort(self) -> None:
-        if not self.dataset.closed:
+        if self.dataset is not None and not self.dataset.closed:
             self.dataset.close()
         self.partial.unlink(missing_ok=True)
         self.cog_partial.unlink(missing_ok=True)

@@ -30,7 +30,8 @@ class RunSettings(_Strict):
     """``[run]``: where outputs go and how the work is chunked."""
 
     out: str = "out"
-    chunk_size: int = Field(1024, ge=64, le=16384)
+    # 512: as fast as 1024 on 2 cores and 440 MB instead of 1.2 GB peak at 4096 x 4096 (bench)
+    chunk_size: int = Field(512, ge=64, le=16384)
     tile_size: int = Field(256, ge=16, le=16384)
     class_table: str = "builtin"
     write_components: bool = False
@@ -334,7 +335,7 @@ class CompareSettings(_Strict):
     """``[compare]``: where comparison outputs go and how they are chunked and tiled."""
 
     out: str = "compare"
-    chunk_size: int = Field(1024, ge=64, le=16384)
+    chunk_size: int = Field(512, ge=64, le=16384)
     tile_size: int = Field(256, ge=16, le=16384)
     zones: ComparisonZones | None = None
 

@@ -294,7 +294,7 @@ def run_season(recipe, season, settings) -> dict:
         outputs = {w.path.name: str(w.commit()) for w in writers}
     finally:
         for w in writers:
-            if not w.dataset.closed:
+            if not w.committed:
                 w.abort()
     content = {
         "season_id": season.id,

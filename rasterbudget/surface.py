@@ -16,10 +16,11 @@ from .physics import ground, radiation, turbulence
 from .physics.constants import SOLAR_CONSTANT, ZERO_CELSIUS
 from .physics.solar import (
     cos_incidence,
-    cos_solar_zenith,
+    cos_incidence_on_normal,
     daylight_hours,
     extraterrestrial_radiation_daily,
     hour_angle,
+    sun_direction,
 )
 from .qa import QA, QA_NO_FLUXES, QA_NOT_ANCHOR
 
@@ -111,6 +112,9 @@ def surface_block(
     aspect: np.ndarray | None = None,
     masked: np.ndarray | None = None,
     weather: dict[str, np.ndarray] | None = None,
+    normal: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    sun: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    daily: bool = True,
 ) -> dict[str, np.ndarray]:
     """Per-pixel radiation budget, ground heat flux, air properties and QA for one block.
 
@@ -120,6 +124,10 @@ def surface_block(
     latitude, longitude : pixel centres. [rad], [degrees east]
     ndvi, elevation : optional 2-D arrays (NaN = nodata). [-], [m]
     slope, aspect : terrain from the DEM, clockwise from north. [rad]
+    normal : unit terrain normal (east, north, up) from the DEM, instead of slope and aspect. [-]
+    sun : unit vector towards the sun (east, north, up) per pixel; computed from latitude and
+        longitude when not given. [-]
+    daily : also compute the FAO-56 daily net radiation (not needed for anchor histograms).
     masked : pixels dropped by a cloud/QA mask. [bool]
     weather : gridded overpass weather on the block, by recipe key (``air_temperature_c`` [degC],
         ``relative_humidity_pct`` [%], ``shortwave_in_w_m2`` [W m-2]); replaces the station
@@ -166,11 +174,18 @@ def surface_block(
     ).astype(np.uint16)
 
     z = np.full(albedo.shape, c.station_elevation) if elevation is None else elevation
-    omega = hour_angle(c.utc_hour, longitude, c.day_of_year)
-    if slope is None:
-        cos_theta = cos_solar_zenith(latitude, c.declination, omega)
-    else:
+    if sun is None:
+        sun = sun_direction(
+            latitude, c.declination, hour_angle(c.utc_hour, longitude, c.day_of_year)
+        )
+    cos_zenith = sun[2]
+    if normal is not None:
+        cos_theta = cos_incidence_on_normal(normal, sun)
+    elif slope is not None:
+        omega = hour_angle(c.utc_hour, longitude, c.day_of_year)
         cos_theta = cos_incidence(latitude, c.declination, omega, slope, aspect)
+    else:
+        cos_theta = cos_zenith
     low_sun = ~(cos_theta >= c.min_cos_incidence)
     qa |= np.where(low_sun, np.uint16(QA.LOW_SUN_OR_SHADOW), np.uint16(0))
 
@@ -179,7 +194,6 @@ def surface_block(
     tau = radiation.clear_sky_transmissivity(z)
     if "shortwave_in_w_m2" in weather:
         # measured on the horizontal: tau = Rs / (Gsc cos(zenith) dr), then onto the slope
-        cos_zenith = cos_solar_zenith(latitude, c.declination, omega)
         with np.errstate(invalid="ignore", divide="ignore"):
             tau = np.clip(
                 weather["shortwave_in_w_m2"]
@@ -229,15 +243,20 @@ def surface_block(
     qa |= np.where(no_energy & ~missing, np.uint16(QA.NO_AVAILABLE_ENERGY), np.uint16(0))
 
     # FAO-56 daily net radiation per pixel (eqs. 21, 34-40) with the pixel's own albedo.
-    ra = extraterrestrial_radiation_daily(latitude, c.day_of_year)
-    rso = radiation.clear_sky_shortwave_daily(ra, z)
-    if c.daily_clearness is not None:
-        rs = c.daily_clearness * rso
+    if daily:
+        ra = extraterrestrial_radiation_daily(latitude, c.day_of_year)
+        rso = radiation.clear_sky_shortwave_daily(ra, z)
+        if c.daily_clearness is not None:
+            rs = c.daily_clearness * rso
+        else:
+            n_max = daylight_hours(latitude, c.day_of_year)
+            rs = radiation.shortwave_daily_from_sunshine(
+                ra, np.minimum(c.sunshine_hours, n_max), n_max
+            )
+        rnl = radiation.net_longwave_daily(c.tmax, c.tmin, c.vapour_pressure_daily, rs, rso)
+        rn_daily = radiation.net_radiation_daily(albedo, rs, rnl)
     else:
-        n_max = daylight_hours(latitude, c.day_of_year)
-        rs = radiation.shortwave_daily_from_sunshine(ra, np.minimum(c.sunshine_hours, n_max), n_max)
-    rnl = radiation.net_longwave_daily(c.tmax, c.tmin, c.vapour_pressure_daily, rs, rso)
-    rn_daily = radiation.net_radiation_daily(albedo, rs, rnl)
+        rn_daily = np.full(albedo.shape, np.nan)
 
     rho = turbulence.air_density(turbulence.air_pressure(z), air_temperature)
 

@@ -13,7 +13,6 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from scipy.stats import qmc
 
 from .recipe import UncertaintySettings
 
@@ -48,6 +47,8 @@ def sample_members(settings: UncertaintySettings) -> list[Member]:
             settings.wind_factor_range,
         ]
     )
+    from scipy.stats import qmc  # here: scipy.stats takes ~1.4 s to import
+
     unit = qmc.LatinHypercube(d=len(ranges), seed=settings.seed).random(settings.members)
     # linear map of [0, 1) onto each [low, high]; a range with low == high fixes that input
     values = ranges[:, 0] + unit * (ranges[:, 1] - ranges[:, 0])

@@ -19,7 +19,6 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from scipy.stats import theilslopes
 
 from ..errors import AnchorError
 from ..histograms import RangeHistogram, merge_optional, range_histogram
@@ -121,6 +120,8 @@ def fit_edges(
     if albedo[dry_branch].size < 2 or albedo[wet_branch].size < 2:
         # the scatter has no turning point inside the data: fit both edges over all bins
         dry_branch = wet_branch = slice(None)
+    from scipy.stats import theilslopes  # here: scipy.stats takes ~1.4 s to import
+
     dry_slope, dry_intercept, *_ = theilslopes(dry[dry_branch], albedo[dry_branch])
     if wet_edge == "flat":
         wet_slope, wet_intercept = 0.0, _percentile_of_counts(counts.sum(axis=0), wet_percentile)

@@ -22,6 +22,7 @@ from rasterbudget.physics.constants import FAO_SOLAR_CONSTANT
 
 __all__ = [
     "cos_incidence",
+    "cos_incidence_on_normal",
     "cos_solar_zenith",
     "daylight_hours",
     "extraterrestrial_radiation_daily",
@@ -30,7 +31,9 @@ __all__ = [
     "seasonal_correction",
     "slope_aspect",
     "solar_declination",
+    "sun_direction",
     "sunset_hour_angle",
+    "surface_normal",
 ]
 
 
@@ -272,6 +275,88 @@ def cos_incidence(
         + cos_d * sin_p * sin_b * cos_g * cos_w
         + cos_d * sin_b * sin_g * sin_w
     )
+
+
+def sun_direction(
+    latitude: ArrayLike, declination: ArrayLike, hour_angle: ArrayLike
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    r"""Unit vector towards the sun in local east, north, up components.
+
+    Parameters
+    ----------
+    latitude : array_like
+        Latitude, positive north. [rad]
+    declination : array_like
+        Solar declination, see :func:`solar_declination`. [rad]
+    hour_angle : array_like
+        Solar hour angle, negative before solar noon, see :func:`hour_angle`. [rad]
+
+    Returns
+    -------
+    east, north, up : numpy.ndarray
+        Components of the unit vector; ``up`` is :math:`\cos\theta_z` of
+        :func:`cos_solar_zenith`. [-]
+
+    Notes
+    -----
+    The horizon-coordinate form of the sun's position (e.g. Duffie & Beckman 2013, sec. 1.6):
+
+    .. math::
+
+        s_e = -\cos\delta \sin\omega, \quad
+        s_n = \sin\delta \cos\varphi - \cos\delta \sin\varphi \cos\omega, \quad
+        s_u = \sin\delta \sin\varphi + \cos\delta \cos\varphi \cos\omega
+
+    Its dot product with a surface's unit normal (:func:`surface_normal`) is Duffie & Beckman's
+    eq. 1.6.2 term by term (:func:`cos_incidence`), without the trigonometry of slope and aspect.
+    """
+    sin_d, cos_d = np.sin(declination), np.cos(declination)
+    sin_p, cos_p = np.sin(latitude), np.cos(latitude)
+    sin_w, cos_w = np.sin(hour_angle), np.cos(hour_angle)
+    return (
+        -cos_d * sin_w,
+        sin_d * cos_p - cos_d * sin_p * cos_w,
+        sin_d * sin_p + cos_d * cos_p * cos_w,
+    )
+
+
+def surface_normal(
+    elevation: ArrayLike, pixel_width: float, pixel_height: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    r"""Unit upward normal of gridded terrain, in east, north, up components.
+
+    Parameters
+    ----------
+    elevation : array_like
+        2-D elevation grid, row 0 along the north edge (north-up raster layout). [m]
+    pixel_width, pixel_height : float
+        Pixel size east–west and north–south, positive. [m]
+
+    Returns
+    -------
+    east, north, up : numpy.ndarray
+        Components of the unit normal :math:`(-\partial z/\partial x, -\partial z/\partial y, 1)
+        / \sqrt{1 + |\nabla z|^2}`; equal to :math:`(\sin\beta \sin a, \sin\beta \cos a,
+        \cos\beta)` with the slope and aspect of :func:`slope_aspect` (same central
+        differences, so the same block-by-block invariance with a one-pixel halo). [-]
+    """
+    dz_drow, dz_dcol = np.gradient(
+        np.asarray(elevation, dtype=np.float64), pixel_height, pixel_width
+    )
+    dz_dx = dz_dcol  # columns increase eastwards
+    dz_dy = -dz_drow  # rows increase southwards
+    up = 1.0 / np.sqrt(1.0 + dz_dx * dz_dx + dz_dy * dz_dy)
+    return -dz_dx * up, -dz_dy * up, up
+
+
+def cos_incidence_on_normal(
+    normal: tuple[ArrayLike, ArrayLike, ArrayLike], sun: tuple[ArrayLike, ArrayLike, ArrayLike]
+) -> np.ndarray:
+    r"""Cosine of the angle of incidence: the dot product of the unit surface normal and the unit
+    vector towards the sun (:func:`surface_normal`, :func:`sun_direction`); equals
+    Duffie & Beckman (2013) eq. 1.6.2 (:func:`cos_incidence`). Not clipped. [-]
+    """
+    return normal[0] * sun[0] + normal[1] * sun[1] + normal[2] * sun[2]
 
 
 def slope_aspect(

@@ -333,3 +333,36 @@ def test_slope_aspect_interior_is_chunk_invariant():
         np.testing.assert_array_equal(s_block[rows, cols], slope[whole_rows, whole_cols])
         np.testing.assert_array_equal(a_block[rows, cols], aspect[whole_rows, whole_cols])
     assert np.all((aspect >= 0.0) & (aspect < 2 * np.pi))
+
+
+def test_normal_and_sun_vectors_reproduce_duffie_beckman_1_6_2():
+    # Duffie & Beckman (2013) eq. 1.6.2 is the dot product of the unit normal (slope, aspect) and
+    # the unit vector towards the sun: the vector form must agree on random terrain and times.
+    rng = np.random.default_rng(11)
+    elevation = rng.normal(1500.0, 40.0, (30, 40))
+    latitude = np.radians(rng.uniform(-60, 60, elevation.shape))
+    declination = 0.3
+    omega = rng.uniform(-1.4, 1.4, elevation.shape)
+    slope, aspect = solar.slope_aspect(elevation, 30.0, 30.0)
+    expected = solar.cos_incidence(latitude, declination, omega, slope, aspect)
+    normal = solar.surface_normal(elevation, 30.0, 30.0)
+    sun = solar.sun_direction(latitude, declination, omega)
+    np.testing.assert_allclose(solar.cos_incidence_on_normal(normal, sun), expected, atol=1e-12)
+    # unit vectors, and the sun's up component is cos(zenith) (D&B eq. 1.6.5)
+    np.testing.assert_allclose(sum(n * n for n in normal), 1.0, atol=1e-12)
+    np.testing.assert_allclose(sum(c * c for c in sun), 1.0, atol=1e-12)
+    np.testing.assert_allclose(
+        sun[2], solar.cos_solar_zenith(latitude, declination, omega), atol=1e-15
+    )
+
+
+def test_morning_sun_lies_east_and_shines_on_east_facing_slopes():
+    east, north, up = solar.sun_direction(np.radians(40.0), 0.4, -0.8)
+    assert east > 0 and up > 0 and north < 0.5
+    facing_east = solar.surface_normal(_plane(5, 5, -0.3, 0.0, 30.0, 30.0), 30.0, 30.0)
+    facing_west = solar.surface_normal(_plane(5, 5, 0.3, 0.0, 30.0, 30.0), 30.0, 30.0)
+    sun = (east, north, up)
+    assert np.all(
+        solar.cos_incidence_on_normal(facing_east, sun)
+        > solar.cos_incidence_on_normal(facing_west, sun)
+    )

@@ -39,3 +39,20 @@ def test_lonlat_does_not_depend_on_the_window():
     part_lon, part_lat = pixel_lonlat(grid, slice(37, 71), slice(13, 90))
     np.testing.assert_array_equal(part_lon, whole_lon[37:71, 13:90])
     np.testing.assert_array_equal(part_lat, whole_lat[37:71, 13:90])
+
+
+def test_sun_direction_on_the_lattice_equals_the_per_pixel_formula():
+    # pixel_geometry interpolates the sun vector between lattice nodes; the error must be tiny
+    import dataclasses
+
+    from rasterbudget.physics.solar import hour_angle, sun_direction
+    from rasterbudget.pipeline import pixel_geometry
+
+    grid = Grid(CRS.from_epsg(32613), from_origin(480000.0, 4430000.0, 30.0, 30.0), 500, 400)
+    constants = dataclasses.make_dataclass("C", ["utc_hour", "day_of_year", "declination"])(
+        17.9, 165, 0.406
+    )
+    lon, lat, sun = pixel_geometry(grid, slice(37, 301), slice(5, 490), constants)
+    expected = sun_direction(lat, 0.406, hour_angle(17.9, lon, 165))
+    for got, want in zip(sun, expected, strict=True):
+        np.testing.assert_allclose(got, want, atol=1e-9)

@@ -1,0 +1,66 @@
+"""Running on dask.distributed: an existing scheduler, or a local cluster of worker processes.
+
+Inputs are read and outputs written by the workers themselves (each block task opens its input
+windows by path, and ``outputs.AtomicRaster`` writes across processes under a cluster-wide lock),
+so only small results (histograms, tile statistics) travel back to the client.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+from collections.abc import Iterator
+
+from .errors import RasterBudgetError
+
+
+def distributed_client():
+    """The dask.distributed client that dask computations go to, or None (threaded runs)."""
+    try:
+        from distributed import default_client
+    except ImportError:
+        return None
+    try:
+        return default_client()
+    except ValueError:
+        return None
+
+
+@contextlib.contextmanager
+def dask_cluster(address: str | None = None, workers: int | None = None) -> Iterator[object]:
+    """Connect to the scheduler at ``address``, or start ``workers`` local worker processes.
+
+    The client becomes dask's default scheduler inside the ``with`` block; a local cluster is
+    closed on exit. Each local worker gets an equal share of the cores as threads.
+    """
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise RasterBudgetError(
+            "--scheduler and --workers need dask.distributed: pip install 'rasterbudget[cluster]'."
+        ) from None
+    cluster = None
+    try:
+        if address is not None:
+            try:
+                # waits up to dask's distributed.comm.timeouts.connect (30 s by default)
+                client = Client(address)
+            except (OSError, TimeoutError) as err:
+                raise RasterBudgetError(
+                    f"cannot reach the dask scheduler at {address} ({err}); check the address "
+                    "(e.g. tcp://10.0.0.5:8786) and that the scheduler is running."
+                ) from None
+        else:
+            threads = max(1, (os.cpu_count() or 1) // max(1, workers or 1))
+            cluster = LocalCluster(
+                n_workers=workers,
+                threads_per_worker=threads,
+                processes=True,
+                dashboard_address=None,
+            )
+            client = Client(cluster)
+        with client:
+            yield client
+    finally:
+        if cluster is not None:
+            cluster.close()
