@@ -193,19 +193,36 @@ def floor_phase(recipe_path: Path, out_dir: Path, chunk: int) -> float:
     return time.perf_counter() - started
 
 
-def pipeline_phase(recipe_path: Path, out_dir: Path, chunk: int, whole_array: bool) -> float:
-    """One full scene run [s]; ``whole_array``: one block the size of the scene, one thread."""
+def pipeline_phase(
+    recipe_path: Path, out_dir: Path, chunk: int, whole_array: bool, workers: int = 0
+) -> float:
+    """One full scene run [s]; ``whole_array``: one block the size of the scene, one thread;
+    ``workers``: on a local dask.distributed cluster of that many processes (started first, not
+    timed)."""
     import dask
 
     from .pipeline import RunSettings, run_scene
 
     recipe, table = _load(recipe_path)
     settings = RunSettings(out_dir=out_dir, chunk_size=chunk, tile_size=256, stac=False)
-    scheduler = "synchronous" if whole_array else "threads"
-    started = time.perf_counter()
-    with dask.config.set(scheduler=scheduler):
+    if workers:
+        from .cluster import dask_cluster
+
+        scheduler = dask_cluster(None, workers)
+    else:
+        name = "synchronous" if whole_array else "threads"
+        scheduler = dask.config.set(scheduler=name)
+    with scheduler as client:
+        started = time.perf_counter()
         run_scene(recipe, recipe.scene[0], table, settings)
-    return time.perf_counter() - started
+        seconds = time.perf_counter() - started
+        if workers:  # each worker process's own peak memory
+            _WORKER_PEAKS[:] = list(client.run(_peak_rss_mb).values())
+    return seconds
+
+
+#: Peak resident memory of each worker of the last distributed pipeline phase [MB].
+_WORKER_PEAKS: list[float] = []
 
 
 def _peak_rss_mb() -> float:
@@ -215,17 +232,20 @@ def _peak_rss_mb() -> float:
 
 def _child_main(argv: list[str]) -> None:
     phase, recipe, out, chunk = argv[0], Path(argv[1]), Path(argv[2]), int(argv[3])
+    workers = int(argv[4]) if len(argv) > 4 else 0
     if phase == "floor":
         seconds = floor_phase(recipe, out, chunk)
     else:
-        seconds = pipeline_phase(recipe, out, chunk, whole_array=phase == "whole_array")
-    print(json.dumps({"seconds": seconds, "peak_rss_mb": _peak_rss_mb()}))
+        seconds = pipeline_phase(recipe, out, chunk, phase == "whole_array", workers)
+    peak = _peak_rss_mb() + sum(_WORKER_PEAKS)  # client and workers together
+    print(json.dumps({"seconds": seconds, "peak_rss_mb": peak, "worker_peaks_mb": _WORKER_PEAKS}))
 
 
-def _run_child(phase: str, recipe: Path, out: Path, chunk: int) -> dict:
+def _run_child(phase: str, recipe: Path, out: Path, chunk: int, workers: int = 0) -> dict:
     shutil.rmtree(out, ignore_errors=True)
+    args = [phase, str(recipe), str(out), str(chunk), str(workers)]
     done = subprocess.run(
-        [sys.executable, "-m", "rasterbudget.bench", phase, str(recipe), str(out), str(chunk)],
+        [sys.executable, "-m", "rasterbudget.bench", *args],
         capture_output=True,
         text=True,
         env=os.environ.copy(),
@@ -247,6 +267,7 @@ def run_bench(
     max_whole_array: int = 4096,
     keep: Path | None = None,
     tiny_dir: Path | None = None,
+    workers: int = 0,
 ) -> dict:
     """Generate the scene, time each phase ``repeat`` times; return the results (one dict)."""
     tiny = tiny_dir or Path(__file__).resolve().parents[1] / "tiny_rasters"
@@ -268,7 +289,8 @@ def run_bench(
         for _ in range(repeat):
             for phase in phases:
                 block = size if phase == "whole_array" else chunk
-                runs[phase].append(_run_child(phase, recipe, work / f"out_{phase}", block))
+                cluster = workers if phase == "pipeline" else 0
+                runs[phase].append(_run_child(phase, recipe, work / f"out_{phase}", block, cluster))
         output_mb = sum(p.stat().st_size for p in (work / "out_pipeline").rglob("*.tif")) / 1e6
     finally:
         if keep is None:
@@ -280,6 +302,7 @@ def run_bench(
         "chunk_size": chunk,
         "repeat": repeat,
         "cores": os.cpu_count(),
+        "workers": workers or "threads",
         "generate_s": round(generate_s, 2),
         "input_mb": round(input_mb, 1),
         "output_mb": round(output_mb, 1),
@@ -301,7 +324,9 @@ def format_table(result: dict) -> str:
     """The bench result as a small text table."""
     lines = [
         f"scene {result['size']} x {result['size']} ({result['megapixels']:.1f} Mpx), "
-        f"chunk {result['chunk_size']}, {result['cores']} cores, median of {result['repeat']}",
+        f"chunk {result['chunk_size']}, {result['cores']} cores, pipeline on "
+        f"{result['workers']}{' worker processes' if result['workers'] != 'threads' else ''}, "
+        f"median of {result['repeat']}",
         f"{'phase':<12}{'seconds':>10}{'Mpx/s':>10}{'peak MB':>10}",
     ]
     for phase in ("floor", "pipeline", "whole_array"):

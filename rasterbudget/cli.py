@@ -426,9 +426,20 @@ def demo(out_dir: Path, debug: bool) -> None:
     type=click.Path(file_okay=False, path_type=Path),
     help="Keep the synthetic scene and outputs in this folder (default: a temporary one).",
 )
+@click.option(
+    "--workers",
+    type=click.IntRange(1, 1024),
+    help="Run the pipeline phase on a local dask.distributed cluster of N worker processes.",
+)
 @debug_option
 def bench(
-    size: int, chunk_size: int, repeat: int, whole_array: bool | None, keep: Path | None, debug
+    size: int,
+    chunk_size: int,
+    repeat: int,
+    whole_array: bool | None,
+    keep: Path | None,
+    workers: int | None,
+    debug: bool,
 ) -> None:
     """Time the pipeline against the raw read/write floor on a synthetic scene.
 
@@ -446,7 +457,7 @@ def bench(
     try:
         from .bench import format_table, run_bench
 
-        result = run_bench(size, chunk_size, repeat, whole_array, keep=keep)
+        result = run_bench(size, chunk_size, repeat, whole_array, keep=keep, workers=workers or 0)
         click.echo(format_table(result))
         click.echo(json.dumps(result))
     except RasterBudgetError as err:

@@ -76,7 +76,14 @@ from .summaries import (
     tile_statistics,
     tiles_geojson,
 )
-from .surface import ClassLookups, SceneConstants, kelvin, perturbed_air, surface_block
+from .surface import (
+    ClassLookups,
+    SceneConstants,
+    kelvin,
+    land_cover_codes,
+    perturbed_air,
+    surface_block,
+)
 from .uncertainty import Member, ensemble_percentiles, sample_members
 
 CAUTION = (
@@ -436,10 +443,19 @@ class BlockContext:
 
 
 def _state(
-    ctx: BlockContext, rows: slice, cols: slice, daily: bool = True
+    ctx: BlockContext,
+    rows: slice,
+    cols: slice,
+    daily: bool = True,
+    candidates_only: bool = False,
 ) -> dict[str, np.ndarray]:
-    """Read one window of every input and compute its surface state (``daily``: with the daily
-    net radiation, which pass 1 does not need)."""
+    """Read one window of every input and compute its surface state.
+
+    ``daily``: with the daily net radiation (pass 1 does not need it). ``candidates_only``: the
+    state of the pixels whose class may serve as an anchor only, as 1-D arrays, with their
+    row-major index in the window as ``window_index`` (pass 1 of the anchor method: the other
+    pixels never enter its histograms, and skipping them halved pass 1's time).
+    """
     data = {}
     normal = None
     for source in ctx.sources:
@@ -460,6 +476,21 @@ def _state(
     if "cloud_mask" in data:
         masked = mask_pixels(data.pop("cloud_mask"), ctx.mask_values, ctx.mask_bits)
     lon, lat, sun = pixel_geometry(ctx.grid, rows, cols, ctx.constants)
+    window_index = None
+    if candidates_only:
+        codes = land_cover_codes(data["land_cover"])
+        keep = (ctx.lookups.cold_anchor | ctx.lookups.hot_anchor)[codes] & np.isfinite(
+            data["land_cover"]
+        )
+        window_index = np.flatnonzero(keep)
+
+        def pick(values):
+            return values.reshape(-1)[window_index]
+
+        data = {k: pick(v) for k, v in data.items()}
+        lon, lat, sun = pick(lon), pick(lat), tuple(pick(s) for s in sun)
+        normal = None if normal is None else tuple(pick(n) for n in normal)
+        masked = None if masked is None else pick(masked)
     state = surface_block(
         ctx.constants,
         ctx.lookups,
@@ -485,6 +516,8 @@ def _state(
         )
     else:
         state["blending_wind_speed"] = np.full(state["qa"].shape, ctx.blending_wind_speed)
+    if window_index is not None:
+        state["window_index"] = window_index
     return state
 
 
@@ -590,11 +623,13 @@ def mask_pixels(mask: np.ndarray, values: tuple[int, ...], bits: tuple[int, ...]
 def pass1_block(ctx: BlockContext, location):
     """Pass 1 for one block: read, surface state, then the method's histograms."""
     (r0, r1), (c0, c1) = location
-    state = _state(ctx, slice(r0, r1), slice(c0, c1), daily=False)
     if ctx.method == "edges":
+        state = _state(ctx, slice(r0, r1), slice(c0, c1), daily=False)
         return edge_method.scatter_histogram_block(state), state["input_stats"]
-    rows, cols = np.mgrid[r0:r1, c0:c1]
-    flat = rows.astype(np.float64) * ctx.grid.width + cols
+    state = _state(ctx, slice(r0, r1), slice(c0, c1), daily=False, candidates_only=True)
+    # global row-major index of each candidate pixel (ties between blocks go to the lowest)
+    row, col = np.divmod(state["window_index"], c1 - c0)
+    flat = (row + r0).astype(np.float64) * ctx.grid.width + (col + c0)
     members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
     histograms = anchor_method.anchor_histograms_block(state, flat, members)
     return histograms, state["input_stats"]
