@@ -49,6 +49,7 @@ def scene_fingerprint(
             "tile_size": settings.tile_size,
             # only when on, so fingerprints of runs without them stay as they were
             **{k: True for k in ("cog", "stac", "zarr") if getattr(settings, k)},
+            "compression": settings.compression,
         },
     }
     return hashlib.sha256(json.dumps(payload, sort_keys=True).encode()).hexdigest()

@@ -156,6 +156,7 @@ def _run(
         cog=parsed.run.cog,
         stac=parsed.run.stac,
         zarr=parsed.run.zarr,
+        compression=parsed.run.compression,
     )
     from .batch import run_batch
 

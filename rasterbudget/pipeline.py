@@ -110,6 +110,7 @@ class RunSettings:
     cog: bool = False  # rasters as Cloud Optimized GeoTIFFs (same names)
     stac: bool = True  # <scene id>.stac.json
     zarr: bool = False  # outputs.zarr, filled by the same compute as the GeoTIFFs
+    compression: str = "zstd"  # GeoTIFF codec, a key of outputs.COMPRESSION
 
 
 @dataclass
@@ -1168,6 +1169,7 @@ def run_scene(
                 text,
                 tags,
                 cog=settings.cog,
+                compression=settings.compression,
             )
             writers.append(writer)
             sources.append(stacked[k])
@@ -1183,6 +1185,7 @@ def run_scene(
             "QA flags, bits in the README",
             tags,
             cog=settings.cog,
+            compression=settings.compression,
         )
         writers.append(qa_writer)
         sources.append(stacked[variables.index(QA_OUTPUT)].astype(np.uint16))

@@ -39,6 +39,7 @@ class RunSettings(_Strict):
     cog: bool = False  # rasters as Cloud Optimized GeoTIFFs (overviews), same names
     stac: bool = True  # a STAC Item per scene: <scene id>.stac.json (about 15 ms)
     zarr: bool = False  # also a Zarr store per scene: outputs.zarr
+    compression: Literal["zstd", "deflate", "lzw", "none"] = "zstd"  # GeoTIFF codec (level 1)
 
 
 class InputSpec(_Strict):

@@ -65,7 +65,9 @@ def test_every_raster_is_a_valid_cog_with_overviews(cloud_run, demo_run, scene):
         with rasterio.open(path) as src, rasterio.open(demo_run / scene / path.name) as plain:
             structure = src.tags(ns="IMAGE_STRUCTURE")
             assert structure.get("LAYOUT") == "COG", path.name
-            assert structure["COMPRESSION"] == "DEFLATE"
+            assert (
+                structure["COMPRESSION"] == "ZSTD"
+            )  # the default codec, as for the plain GeoTIFFs
             integer = src.dtypes[0] == "uint16"
             assert structure["PREDICTOR"] == ("2" if integer else "3")
             assert src.overviews(1) == [2], path.name  # 300 x 400 with 256-pixel tiles

@@ -40,7 +40,7 @@ def test_every_output_is_written_with_georeferencing_and_units(demo_run, scene):
         data, profile, tags, descriptions = read(folder / f"{name}.tif")
         assert profile["crs"] == crs and profile["transform"] == transform
         assert data.shape == shape and data.dtype == np.float32
-        assert profile["tiled"] and profile["compress"] == "deflate"
+        assert profile["tiled"] and profile["compress"] == "zstd"  # the default codec
         assert np.isnan(profile["nodata"])
         assert tags["units"] == units and descriptions == (name,)
     qa, profile, _, _ = read(folder / "qa_flags.tif")
