@@ -5,7 +5,6 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-import rasterio
 
 from .outputs import FLUX_OUTPUTS, PARTIAL_SUFFIX
 
@@ -19,18 +18,20 @@ PANELS = (
     ("et_daily", "YlGnBu", None),
 )
 
-MAX_PIXELS = 800  # longest side of each panel, decimated on read
+MAX_PIXELS = 800  # longest side of each panel
 
 
-def _read_decimated(path: Path) -> np.ndarray:
-    with rasterio.open(path) as src:
-        factor = max(1, int(np.ceil(max(src.width, src.height) / MAX_PIXELS)))
-        shape = (max(1, src.height // factor), max(1, src.width // factor))
-        return src.read(1, out_shape=shape, masked=True).filled(np.nan)
+def decimation_factor(width: int, height: int) -> int:
+    """Every n-th pixel in both directions keeps the longest panel side within ``MAX_PIXELS``."""
+    return max(1, int(np.ceil(max(width, height) / MAX_PIXELS)))
 
 
-def write_quicklook(outputs: dict[str, Path], path: Path, title: str) -> Path:
-    """Render the panels to a PNG (written atomically)."""
+def write_quicklook(panels: dict[str, np.ndarray], path: Path, title: str) -> Path:
+    """Render the panels (decimated output arrays, NaN = no value) to a PNG, written atomically.
+
+    The pipeline takes the decimated arrays from its pass-2 blocks in the same compute as the
+    GeoTIFFs: reading the written outputs back cost about 1 s at 4096 x 4096.
+    """
     import matplotlib
 
     matplotlib.use("Agg")
@@ -40,7 +41,7 @@ def write_quicklook(outputs: dict[str, Path], path: Path, title: str) -> Path:
     fig, axes = plt.subplots(2, 3, figsize=(13, 7.5))
     fig.subplots_adjust(left=0.02, right=0.97, bottom=0.03, top=0.9, wspace=0.12, hspace=0.18)
     for ax, (name, cmap, fixed) in zip(axes.flat, PANELS, strict=True):
-        data = _read_decimated(outputs[name])
+        data = np.asarray(panels[name], dtype=np.float64)
         finite = data[np.isfinite(data)]
         if fixed is not None:
             vmin, vmax = fixed
