@@ -820,7 +820,7 @@ def _combine_class(a, b):
     moments[..., :3] += b[1][..., :3]
     moments[..., 3] = np.minimum(a[1][..., 3], b[1][..., 3])
     moments[..., 4] = np.maximum(a[1][..., 4], b[1][..., 4])
-    return hists, moments, a[2] + b[2]
+    return hists, moments, a[2] + b[2], {**a[3], **b[3]}
 
 
 def _decimated(block: np.ndarray, index: list[int], step: int, r0: int, c0: int) -> np.ndarray:
@@ -828,13 +828,27 @@ def _decimated(block: np.ndarray, index: list[int], step: int, r0: int, c0: int)
     return block[index, (-r0) % step :: step, (-c0) % step :: step].astype(np.float32)
 
 
-def _class_block(block: np.ndarray, variables: tuple[str, ...], class_codes: list[int]):
-    """Per-class histograms and moments of one pass-2 block, and its pixels per QA bit."""
+def _class_block(
+    block: np.ndarray,
+    variables: tuple[str, ...],
+    class_codes: list[int],
+    thumbnail: tuple[list[int], int, int, int] | None = None,
+):
+    """Per-class histograms and moments of one pass-2 block, its pixels per QA bit and, given
+    ``thumbnail = (variable indices, step, r0, c0)``, its quick-look pixels keyed by (r0, c0).
+
+    The quick-look pixels come from this task rather than one of their own: as a separate leaf
+    task dask ran them late and held every pass-2 block until then (+350 MB at 1024 blocks).
+    """
     values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES if name in variables}
     codes = block[variables.index("land_cover_code")].astype(np.intp)
     qa = block[variables.index(QA_OUTPUT)].astype(np.uint16)
     qa_counts = np.array([np.count_nonzero(qa & np.uint16(b)) for b in QA], dtype=np.int64)
-    return (*class_histograms(values, codes, class_codes), qa_counts)
+    thumbs = {}
+    if thumbnail is not None:
+        index, step, r0, c0 = thumbnail
+        thumbs[r0, c0] = _decimated(block, index, step, r0, c0)
+    return (*class_histograms(values, codes, class_codes), qa_counts, thumbs)
 
 
 def versions() -> dict[str, str]:
@@ -1216,41 +1230,31 @@ def run_scene(
         tiled = stacked[index].rechunk((len(flux_names), tile, tile))
         tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
         tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
-        class_codes = table.codes
-        class_parts = [
-            dask.delayed(_class_block)(b, variables, class_codes)
-            for b in stacked.to_delayed(optimize_graph=False).ravel()
-        ]
-        class_total = _tree_reduce(class_parts, _combine_class)
-        # Every n-th pixel of the quick-look variables, taken from the same blocks (reading the
-        # written outputs back cost about 1 s at 4096 x 4096). Delayed per block, not a sliced
-        # dask array: an Array next to these Delayed objects in one dask.compute returned the
-        # results misassigned (dask 2026.1).
+        # Every n-th pixel of the quick-look variables comes from the same blocks, in the class
+        # task (reading the written outputs back cost about 1 s at 4096 x 4096).
         from .quicklook import PANELS, decimation_factor
 
         panel_names = [name for name, *_ in PANELS] if settings.quicklook else []
         step = decimation_factor(grid.width, grid.height)
         panel_index = [variables.index(name) for name in panel_names]
+        class_codes = table.codes
         block_grid = stacked.to_delayed(optimize_graph=False)[0]
-        thumbnail_parts = (
-            [
-                [
-                    dask.delayed(_decimated)(b, panel_index, step, r0, c0)
-                    for b, c0 in zip(row, col_edges[:-1], strict=True)
-                ]
-                for row, r0 in zip(block_grid, row_edges[:-1], strict=True)
-            ]
-            if panel_names
-            else []
-        )
-        with TaskProgress(f"{scene.id} pass 2", settings.progress):
-            _, tile_stats, class_result, thumbnail_parts = dask.compute(
-                store, tile_stats, class_total, thumbnail_parts
+        class_parts = [
+            dask.delayed(_class_block)(
+                b, variables, class_codes, (panel_index, step, r0, c0) if panel_names else None
             )
-        class_hist, class_moments, qa_bit_counts = class_result
+            for row, r0 in zip(block_grid, row_edges[:-1], strict=True)
+            for b, c0 in zip(row, col_edges[:-1], strict=True)
+        ]
+        class_total = _tree_reduce(class_parts, _combine_class)
+        with TaskProgress(f"{scene.id} pass 2", settings.progress):
+            _, tile_stats, class_result = dask.compute(store, tile_stats, class_total)
+        class_hist, class_moments, qa_bit_counts, thumbs = class_result
         panels = {}
         if panel_names:
-            thumbnails = np.block([list(row) for row in thumbnail_parts])
+            thumbnails = np.block(
+                [[thumbs[r0, c0] for c0 in col_edges[:-1]] for r0 in row_edges[:-1]]
+            )
             panels = dict(zip(panel_names, thumbnails, strict=True))
         timings["pass2_s"] = time.perf_counter() - t0
         t0 = time.perf_counter()
