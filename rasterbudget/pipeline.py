@@ -820,7 +820,7 @@ def _combine_class(a, b):
     moments[..., :3] += b[1][..., :3]
     moments[..., 3] = np.minimum(a[1][..., 3], b[1][..., 3])
     moments[..., 4] = np.maximum(a[1][..., 4], b[1][..., 4])
-    return hists, moments, a[2] + b[2], {**a[3], **b[3]}
+    return hists, moments, a[2] + b[2], {**a[3], **b[3]}, {**a[4], **b[4]}
 
 
 def _decimated(block: np.ndarray, index: list[int], step: int, r0: int, c0: int) -> np.ndarray:
@@ -833,12 +833,16 @@ def _class_block(
     variables: tuple[str, ...],
     class_codes: list[int],
     thumbnail: tuple[list[int], int, int, int] | None = None,
+    tiles: tuple[list[int], int, int, int] | None = None,
 ):
     """Per-class histograms and moments of one pass-2 block, its pixels per QA bit and, given
-    ``thumbnail = (variable indices, step, r0, c0)``, its quick-look pixels keyed by (r0, c0).
+    ``thumbnail = (variable indices, step, r0, c0)``, its quick-look pixels keyed by (r0, c0);
+    given ``tiles = (variable indices, tile, r0, c0)`` with tiles that lie inside blocks, the
+    statistics of its tiles keyed by (tile row, tile col).
 
-    The quick-look pixels come from this task rather than one of their own: as a separate leaf
-    task dask ran them late and held every pass-2 block until then (+350 MB at 1024 blocks).
+    Quick-look pixels and tile statistics come from this task rather than tasks of their own: as
+    separate leaf tasks dask ran them late and held the pass-2 blocks until then (+350 MB at
+    1024 blocks for the quick-look; the peak grew with the block count).
     """
     values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES if name in variables}
     codes = block[variables.index("land_cover_code")].astype(np.intp)
@@ -848,7 +852,15 @@ def _class_block(
     if thumbnail is not None:
         index, step, r0, c0 = thumbnail
         thumbs[r0, c0] = _decimated(block, index, step, r0, c0)
-    return (*class_histograms(values, codes, class_codes), qa_counts, thumbs)
+    stats = {}
+    if tiles is not None:
+        index, tile, r0, c0 = tiles
+        summarised = block[index]
+        for tr in range(0, block.shape[1], tile):
+            for tc in range(0, block.shape[2], tile):
+                part = summarised[:, tr : tr + tile, tc : tc + tile]
+                stats[(r0 + tr) // tile, (c0 + tc) // tile] = tile_statistics(part)
+    return (*class_histograms(values, codes, class_codes), qa_counts, thumbs, stats)
 
 
 def versions() -> dict[str, str]:
@@ -1227,9 +1239,13 @@ def run_scene(
         tile = settings.tile_size
         flux_names = [n for n in HISTOGRAM_RANGES if n in variables]  # summarised variables
         index = [variables.index(n) for n in flux_names]
-        tiled = stacked[index].rechunk((len(flux_names), tile, tile))
-        tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
-        tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
+        # Tiles inside blocks are summarised by the block's class task; others need a rechunk.
+        tiles_in_blocks = chunk % tile == 0
+        tile_stats = []
+        if not tiles_in_blocks:
+            tiled = stacked[index].rechunk((len(flux_names), tile, tile))
+            tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
+            tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
         # Every n-th pixel of the quick-look variables comes from the same blocks, in the class
         # task (reading the written outputs back cost about 1 s at 4096 x 4096).
         from .quicklook import PANELS, decimation_factor
@@ -1241,7 +1257,11 @@ def run_scene(
         block_grid = stacked.to_delayed(optimize_graph=False)[0]
         class_parts = [
             dask.delayed(_class_block)(
-                b, variables, class_codes, (panel_index, step, r0, c0) if panel_names else None
+                b,
+                variables,
+                class_codes,
+                (panel_index, step, r0, c0) if panel_names else None,
+                (index, tile, r0, c0) if tiles_in_blocks else None,
             )
             for row, r0 in zip(block_grid, row_edges[:-1], strict=True)
             for b, c0 in zip(row, col_edges[:-1], strict=True)
@@ -1249,7 +1269,13 @@ def run_scene(
         class_total = _tree_reduce(class_parts, _combine_class)
         with TaskProgress(f"{scene.id} pass 2", settings.progress):
             _, tile_stats, class_result = dask.compute(store, tile_stats, class_total)
-        class_hist, class_moments, qa_bit_counts, thumbs = class_result
+        class_hist, class_moments, qa_bit_counts, thumbs, block_tiles = class_result
+        if tiles_in_blocks:
+            tile_rows_count = -(-grid.height // tile)
+            tile_cols_count = -(-grid.width // tile)
+            tile_stats = [
+                [block_tiles[i, j] for j in range(tile_cols_count)] for i in range(tile_rows_count)
+            ]
         panels = {}
         if panel_names:
             thumbnails = np.block(
