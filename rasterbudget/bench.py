@@ -183,7 +183,7 @@ def floor_phase(recipe_path: Path, out_dir: Path, chunk: int) -> float:
         for n in names[:-1]
     ]
     qa_path = out_dir / f"{QA_OUTPUT}.tif"
-    writers.append(AtomicRaster(qa_path, grid, "uint16", 0, size, QA_OUTPUT, "", ""))
+    writers.append(AtomicRaster(qa_path, grid, "uint16", None, size, QA_OUTPUT, "", ""))
     sources = [stacked[k] for k in range(len(names) - 1)]
     sources.append(stacked[-1].astype(np.uint16))
     with rasterio.Env(**GDAL_OPTIONS):

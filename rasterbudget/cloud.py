@@ -291,9 +291,10 @@ def raster_asset(
         "description": description,
         "roles": ["data"] if np.dtype(dtype).kind == "f" else ["metadata"],
         "data_type": str(np.dtype(dtype)),
-        # JSON has no NaN: STAC writes the float nodata NaN as the string "nan".
-        "nodata": "nan" if isinstance(nodata, float) and np.isnan(nodata) else nodata,
     }
+    if nodata is not None:  # qa_flags has none: every pixel carries its flags, 0 = no flag
+        # JSON has no NaN: STAC writes the float nodata NaN as the string "nan".
+        fields["nodata"] = "nan" if isinstance(nodata, float) and np.isnan(nodata) else nodata
     if np.dtype(dtype).kind == "f":
         fields["unit"] = units
     return name, fields

@@ -130,7 +130,7 @@ class AtomicRaster:
         path: Path,
         grid: Grid,
         dtype: str,
-        nodata: float | int,
+        nodata: float | int | None,
         block_size: int,
         name: str,
         units: str,

@@ -1209,7 +1209,7 @@ def run_scene(
             out_dir / f"{QA_OUTPUT}.tif",
             grid,
             "uint16",
-            0,
+            None,  # no nodata: 0 means "no flag", and GIS tools would hide such pixels
             block,
             QA_OUTPUT,
             "bitmask",

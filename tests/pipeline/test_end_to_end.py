@@ -45,6 +45,7 @@ def test_every_output_is_written_with_georeferencing_and_units(demo_run, scene):
         assert tags["units"] == units and descriptions == (name,)
     qa, profile, _, _ = read(folder / "qa_flags.tif")
     assert qa.dtype == np.uint16
+    assert profile["nodata"] is None  # 0 is "no flag", not "no data": viewers must show it
 
 
 @pytest.mark.parametrize("scene", SCENES)
