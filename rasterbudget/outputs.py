@@ -150,41 +150,43 @@ class AtomicRaster:
         self.committed = False
         self.lock = threading.Lock()
         self._shape = (grid.height, grid.width)
-        self.dataset = rasterio.open(
-            self.partial,
-            "w",
-            width=grid.width,
-            height=grid.height,
-            count=1,
-            dtype=dtype,
-            crs=grid.crs,
-            transform=grid.transform,
-            nodata=nodata,
-            **creation_options(block_size, dtype, compression),
-        )
-        self.dataset.set_band_description(1, name)
-        self.dataset.update_tags(1, units=units, long_name=description)
-        if tags:
-            self.dataset.update_tags(**{k: str(v) for k, v in tags.items()})
         self.dtype = dtype
         self.nodata = nodata
         self.units = units
         self.description = description
+        profile = {
+            "width": grid.width,
+            "height": grid.height,
+            "count": 1,
+            "dtype": dtype,
+            "crs": grid.crs.to_wkt(),
+            "transform": grid.transform,
+            "nodata": nodata,
+            **creation_options(block_size, dtype, compression),
+        }
+        band = {"name": name, "units": units, "description": description, "tags": tags or {}}
         from .cluster import distributed_client
 
-        # Under dask.distributed the windows are written by worker processes: the file is
-        # created here, closed, and each write reopens it in update mode under a lock that
-        # holds across processes (one GDAL writer per file at a time).
-        self.shared = distributed_client() is not None
+        client = distributed_client()
+        # Under dask.distributed one worker holds each file open, as a dask actor, and every
+        # window goes to it: one GDAL writer per file, creating the file with the codec level
+        # (reopening it in update mode per window compressed at GDAL's default level, 4x slower).
+        self.shared = client is not None
+        self.dataset = None
+        self._actor = None
         if self.shared:
-            self.dataset.close()
+            self._actor = client.submit(
+                WindowWriter, str(self.partial), profile, band, actor=True, pure=False
+            ).result()
+        else:
+            self.dataset = _create(self.partial, profile, band)
 
     @property
     def shape(self) -> tuple[int, int]:
         return self._shape
 
     def __getstate__(self) -> dict:
-        # Sent to worker processes (shared mode): paths and metadata, no open handle or lock.
+        # Sent to worker processes (shared mode): metadata and the actor, no handle or lock.
         state = self.__dict__.copy()
         state["dataset"] = state["lock"] = None
         return state
@@ -201,15 +203,14 @@ class AtomicRaster:
             with self.lock:
                 self.dataset.write(data, 1, window=window)
             return
-        from distributed import Lock
-
-        with Lock(f"rasterbudget-write-{self.partial}"), rasterio.open(self.partial, "r+") as dst:
-            dst.write(data, 1, window=window)
+        self._actor.write(rows.start, rows.stop, cols.start, cols.stop, data).result()
 
     def finish(self) -> None:
         """Close the file; with ``cog``, convert it to a COG under its temporary name."""
         if self.dataset is not None and not self.dataset.closed:
             self.dataset.close()
+        if self._actor is not None:
+            self._actor.close().result()
         if not self.cog:
             self._ready = self.partial
             return
@@ -228,8 +229,41 @@ class AtomicRaster:
     def abort(self) -> None:
         if self.dataset is not None and not self.dataset.closed:
             self.dataset.close()
+        if self._actor is not None:
+            try:
+                self._actor.close().result()
+            except Exception:  # the worker may be gone; the file is removed below anyway
+                pass
         self.partial.unlink(missing_ok=True)
         self.cog_partial.unlink(missing_ok=True)
+
+
+def _create(path: Path | str, profile: dict, band: dict):
+    """Create a single-band GeoTIFF open for writing, with its band name, units and tags."""
+    dataset = rasterio.open(path, "w", **profile)
+    dataset.set_band_description(1, band["name"])
+    dataset.update_tags(1, units=band["units"], long_name=band["description"])
+    if band["tags"]:
+        dataset.update_tags(**{k: str(v) for k, v in band["tags"].items()})
+    return dataset
+
+
+class WindowWriter:
+    """Holds one output GeoTIFF open on a dask.distributed worker (run there as an actor) and
+    writes the windows sent to it, one at a time."""
+
+    def __init__(self, path: str, profile: dict, band: dict) -> None:
+        self.dataset = _create(path, profile, band)
+        self.lock = threading.Lock()
+
+    def write(self, r0: int, r1: int, c0: int, c1: int, data: np.ndarray) -> None:
+        with self.lock:
+            self.dataset.write(data, 1, window=Window(c0, r0, c1 - c0, r1 - r0))
+
+    def close(self) -> None:
+        with self.lock:
+            if not self.dataset.closed:
+                self.dataset.close()
 
 
 def write_cog(
