@@ -1,7 +1,7 @@
 """Running on dask.distributed: an existing scheduler, or a local cluster of worker processes.
 
-Inputs are read and outputs written by the workers themselves (each block task opens its input
-windows by path, and ``outputs.AtomicRaster`` writes across processes under a cluster-wide lock),
+Inputs are read by the workers themselves (each block task opens its input windows by path) and
+outputs written there too (``outputs.AtomicRaster`` puts one writer actor per file on a worker),
 so only small results (histograms, tile statistics) travel back to the client.
 """
 

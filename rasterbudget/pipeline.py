@@ -812,7 +812,7 @@ def _tree_reduce(items: list, combine, split_every: int = 8):
     return level[0]
 
 
-def _combine_class(a, b):
+def _combine_summaries(a, b):
     hists = dict(a[0])
     for key, hist in b[0].items():
         hists[key] = hist.merge(hists.get(key))
@@ -828,7 +828,7 @@ def _decimated(block: np.ndarray, index: list[int], step: int, r0: int, c0: int)
     return block[index, (-r0) % step :: step, (-c0) % step :: step].astype(np.float32)
 
 
-def _class_block(
+def _block_summary(
     block: np.ndarray,
     variables: tuple[str, ...],
     class_codes: list[int],
@@ -1239,14 +1239,14 @@ def run_scene(
         tile = settings.tile_size
         flux_names = [n for n in HISTOGRAM_RANGES if n in variables]  # summarised variables
         index = [variables.index(n) for n in flux_names]
-        # Tiles inside blocks are summarised by the block's class task; others need a rechunk.
+        # Tiles inside blocks are summarised by the block's summary task; others need a rechunk.
         tiles_in_blocks = chunk % tile == 0
         tile_stats = []
         if not tiles_in_blocks:
             tiled = stacked[index].rechunk((len(flux_names), tile, tile))
             tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
             tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
-        # Every n-th pixel of the quick-look variables comes from the same blocks, in the class
+        # Every n-th pixel of the quick-look variables comes from the same blocks, in the summary
         # task (reading the written outputs back cost about 1 s at 4096 x 4096).
         from .quicklook import PANELS, decimation_factor
 
@@ -1255,8 +1255,8 @@ def run_scene(
         panel_index = [variables.index(name) for name in panel_names]
         class_codes = table.codes
         block_grid = stacked.to_delayed(optimize_graph=False)[0]
-        class_parts = [
-            dask.delayed(_class_block)(
+        summary_parts = [
+            dask.delayed(_block_summary)(
                 b,
                 variables,
                 class_codes,
@@ -1266,10 +1266,10 @@ def run_scene(
             for row, r0 in zip(block_grid, row_edges[:-1], strict=True)
             for b, c0 in zip(row, col_edges[:-1], strict=True)
         ]
-        class_total = _tree_reduce(class_parts, _combine_class)
+        summary_total = _tree_reduce(summary_parts, _combine_summaries)
         with TaskProgress(f"{scene.id} pass 2", settings.progress):
-            _, tile_stats, class_result = dask.compute(store, tile_stats, class_total)
-        class_hist, class_moments, qa_bit_counts, thumbs, block_tiles = class_result
+            _, tile_stats, summary = dask.compute(store, tile_stats, summary_total)
+        class_hist, class_moments, qa_bit_counts, thumbs, block_tiles = summary
         if tiles_in_blocks:
             tile_rows_count = -(-grid.height // tile)
             tile_cols_count = -(-grid.width // tile)

@@ -114,3 +114,77 @@ def test_compare_refuses_rasters_on_other_grids(tmp_path):
         main, ["compare", str(a), "--previous", str(b), "--out", str(tmp_path / "o")]
     )
     assert result.exit_code == 2 and "not on the grid" in result.output
+
+
+def test_comparison_recipe_errors_name_the_key(tmp_path):
+    from rasterbudget.errors import RecipeError
+    from rasterbudget.recipe import load_compare_recipe
+
+    recipe = tmp_path / "c.toml"
+    recipe.write_text('[[comparison]]\nid = "x"\ncurrent = "a.tif"\nbaseline = ["b.tif"]\n')
+    with pytest.raises(RecipeError, match=r"comparison\.0.*previous.*two baseline"):
+        load_compare_recipe(recipe)
+    recipe.write_text('[compare]\noutt = "o"\n[[comparison]]\nid = "x"\ncurrent = "a.tif"\n')
+    with pytest.raises(RecipeError, match=r"compare\.outt: unknown key"):
+        load_compare_recipe(recipe)
+
+
+def test_compare_recipe_with_a_missing_raster_writes_nothing(tmp_path):
+    recipe = tmp_path / "c.toml"
+    recipe.write_text(
+        f'[compare]\nout = "{tmp_path / "out"}"\n[[comparison]]\nid = "x"\n'
+        'current = "missing.tif"\nprevious = "also_missing.tif"\n'
+    )
+    result = CliRunner().invoke(main, ["compare", str(recipe)])
+    assert result.exit_code != 0
+    assert "missing.tif does not exist" in result.output
+    assert not (tmp_path / "out" / "x").exists() or not list((tmp_path / "out" / "x").iterdir())
+
+
+def test_comparison_outputs_do_not_depend_on_chunking(tmp_path):
+    import json
+
+    from rasterbudget.compare import run_compare
+
+    rng = np.random.default_rng(5)
+    years = [_write(tmp_path / f"y{k}.tif", rng.normal(600.0, 50.0, (150, 170))) for k in range(3)]
+    now = _write(tmp_path / "now.tif", rng.normal(560.0, 50.0, (150, 170)))
+    zones = tmp_path / "zones.geojson"
+    box = [
+        [480300.0, 4426000.0],
+        [483000.0, 4426000.0],
+        [483000.0, 4429000.0],
+        [480300.0, 4429000.0],
+    ]
+    zones.write_text(
+        json.dumps(
+            {
+                "type": "FeatureCollection",
+                "crs": {"type": "name", "properties": {"name": "EPSG:32613"}},
+                "features": [
+                    {
+                        "type": "Feature",
+                        "properties": {"zone_id": "z"},
+                        "geometry": {"type": "Polygon", "coordinates": [[*box, box[0]]]},
+                    }
+                ],
+            }
+        )
+    )
+    results = {}
+    for chunk in (64, 512):
+        out = tmp_path / f"c{chunk}"
+        results[chunk] = run_compare(now, out, years[0], years, chunk, 50, (zones, "zone_id"))
+    for name in ("difference", "percent_change", "standardized_anomaly", "drought_category"):
+        with (
+            rasterio.open(tmp_path / "c64" / f"{name}.tif") as a,
+            rasterio.open(tmp_path / "c512" / f"{name}.tif") as b,
+        ):
+            np.testing.assert_array_equal(a.read(), b.read())
+    assert results[64]["categories"] == results[512]["categories"]
+    for key, value in results[64]["zones"][0].items():
+        other = results[512]["zones"][0][key]
+        assert value == other or np.isclose(value, other, rtol=1e-12), key
+    assert (tmp_path / "c64" / "tiles.csv").read_text() == (
+        tmp_path / "c512" / "tiles.csv"
+    ).read_text()
