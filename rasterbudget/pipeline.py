@@ -19,7 +19,7 @@ import platform
 import threading
 import time
 from dataclasses import asdict, dataclass, field
-from functools import reduce
+from functools import partial, reduce
 from pathlib import Path
 
 import numpy as np
@@ -863,6 +863,21 @@ def _block_summary(
     return (*class_histograms(values, codes, class_codes), qa_counts, thumbs, stats)
 
 
+def _pass2_write_block(ctx: BlockContext, p: Pass2Parameters, location, summary_args, targets):
+    """Pass 2 of one block, its windows written to every target, and its summary returned.
+
+    ``targets``: (variable index, data type, target) with targets that take
+    ``target[rows, cols] = values`` (GeoTIFF writers, Zarr arrays); ``summary_args``: the
+    arguments of :func:`_block_summary` after the block.
+    """
+    block = pass2_block(ctx, p, location)
+    (r0, r1), (c0, c1) = location
+    window = (slice(r0, r1), slice(c0, c1))
+    for k, dtype, target in targets:
+        target[window] = block[k].astype(dtype)
+    return _block_summary(block, *summary_args)
+
+
 def versions() -> dict[str, str]:
     import dask
     import pyproj
@@ -1161,20 +1176,6 @@ def run_scene(
         variables = (*written, QA_OUTPUT, "land_cover_code")
         params = Pass2Parameters(variables=variables, **method_params)
         params_task = dask.delayed(params)
-        stacked = da.block(
-            [
-                [
-                    da.from_delayed(
-                        dask.delayed(pass2_block)(ctx_task, params_task, loc),
-                        shape=(len(variables), loc[0][1] - loc[0][0], loc[1][1] - loc[1][0]),
-                        dtype=np.float32,
-                        meta=np.empty((0, 0, 0), np.float32),
-                    )
-                    for loc in row
-                ]
-                for row in locations
-            ]
-        )
         descriptions = {
             **FLUX_OUTPUTS,
             **COMPONENT_OUTPUTS,
@@ -1186,7 +1187,7 @@ def run_scene(
             "acquired_utc": scene.acquired_utc.isoformat(),
             "software": f"rasterbudget {__version__}",
         }
-        sources, targets = [], []
+        targets = []  # (variable index, data type, GeoTIFF writer or Zarr array)
         for k, name in enumerate(written):
             units, text = descriptions[name]
             writer = AtomicRaster(
@@ -1203,8 +1204,7 @@ def run_scene(
                 compression=settings.compression,
             )
             writers.append(writer)
-            sources.append(stacked[k])
-            targets.append(writer)
+            targets.append((k, "float32", writer))
         qa_writer = AtomicRaster(
             out_dir / f"{QA_OUTPUT}.tif",
             grid,
@@ -1219,33 +1219,22 @@ def run_scene(
             compression=settings.compression,
         )
         writers.append(qa_writer)
-        sources.append(stacked[variables.index(QA_OUTPUT)].astype(np.uint16))
-        targets.append(qa_writer)
+        targets.append((variables.index(QA_OUTPUT), "uint16", qa_writer))
         if settings.zarr:
             from .cloud import ZARR_NAME, AtomicZarr
 
             zarr_vars = {n: ("float32", *descriptions[n]) for n in written}
             zarr_vars[QA_OUTPUT] = ("uint16", "1", "QA flags, bits in the README")
             zarr_store = AtomicZarr(out_dir / ZARR_NAME, grid, chunk, zarr_vars, tags)
-            # The same dask arrays as the GeoTIFFs': dask merges the graphs by key, so each
-            # block is computed once and written to both.
-            for array, source in zip(zarr_store.arrays.values(), list(sources), strict=True):
-                sources.append(source)
-                targets.append(array)
-        # A lock per file: GDAL handles are not thread-safe, but different files may be
-        # written at once (AtomicRaster.__setitem__ holds its own lock, so lock=False here).
-        store = da.store(sources, targets, lock=False, compute=False)
+            # The same blocks as the GeoTIFFs': each block is computed once and written to both.
+            for array, (k, dtype, _) in zip(zarr_store.arrays.values(), list(targets), strict=True):
+                targets.append((k, dtype, array))
 
         tile = settings.tile_size
         flux_names = [n for n in HISTOGRAM_RANGES if n in variables]  # summarised variables
         index = [variables.index(n) for n in flux_names]
-        # Tiles inside blocks are summarised by the block's summary task; others need a rechunk.
+        # Tiles inside blocks are summarised by the block's own task; others need a rechunk.
         tiles_in_blocks = chunk % tile == 0
-        tile_stats = []
-        if not tiles_in_blocks:
-            tiled = stacked[index].rechunk((len(flux_names), tile, tile))
-            tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
-            tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
         # Every n-th pixel of the quick-look variables comes from the same blocks, in the summary
         # task (reading the written outputs back cost about 1 s at 4096 x 4096).
         from .quicklook import PANELS, decimation_factor
@@ -1254,18 +1243,60 @@ def run_scene(
         step = decimation_factor(grid.width, grid.height)
         panel_index = [variables.index(name) for name in panel_names]
         class_codes = table.codes
-        block_grid = stacked.to_delayed(optimize_graph=False)[0]
-        summary_parts = [
-            dask.delayed(_block_summary)(
-                b,
-                variables,
-                class_codes,
-                (panel_index, step, r0, c0) if panel_names else None,
-                (index, tile, r0, c0) if tiles_in_blocks else None,
+        tile_stats = []
+        if tiles_in_blocks:
+            # One task per block computes it, writes its windows and returns only its summary:
+            # no block outlives its task, so memory does not grow with the number of blocks.
+            write_block = partial(_pass2_write_block, targets=targets)
+            summary_parts = [
+                dask.delayed(write_block, pure=False)(
+                    ctx_task,
+                    params_task,
+                    loc,
+                    (
+                        variables,
+                        class_codes,
+                        (panel_index, step, loc[0][0], loc[1][0]) if panel_names else None,
+                        (index, tile, loc[0][0], loc[1][0]),
+                    ),
+                )
+                for row in locations
+                for loc in row
+            ]
+            store = None
+        else:
+            stacked = da.block(
+                [
+                    [
+                        da.from_delayed(
+                            dask.delayed(pass2_block)(ctx_task, params_task, loc),
+                            shape=(len(variables), loc[0][1] - loc[0][0], loc[1][1] - loc[1][0]),
+                            dtype=np.float32,
+                            meta=np.empty((0, 0, 0), np.float32),
+                        )
+                        for loc in row
+                    ]
+                    for row in locations
+                ]
             )
-            for row, r0 in zip(block_grid, row_edges[:-1], strict=True)
-            for b, c0 in zip(row, col_edges[:-1], strict=True)
-        ]
+            # A lock per file: GDAL handles are not thread-safe, but different files may be
+            # written at once (AtomicRaster.__setitem__ holds its own lock, so lock=False here).
+            arrays = [stacked[k].astype(dtype) for k, dtype, _ in targets]
+            store = da.store(arrays, [t for *_, t in targets], lock=False, compute=False)
+            tiled = stacked[index].rechunk((len(flux_names), tile, tile))
+            tile_delayed = tiled.to_delayed(optimize_graph=False)[0]
+            tile_stats = [[dask.delayed(tile_statistics)(b) for b in row] for row in tile_delayed]
+            block_grid = stacked.to_delayed(optimize_graph=False)[0]
+            summary_parts = [
+                dask.delayed(_block_summary)(
+                    b,
+                    variables,
+                    class_codes,
+                    (panel_index, step, r0, c0) if panel_names else None,
+                )
+                for row, r0 in zip(block_grid, row_edges[:-1], strict=True)
+                for b, c0 in zip(row, col_edges[:-1], strict=True)
+            ]
         summary_total = _tree_reduce(summary_parts, _combine_summaries)
         with TaskProgress(f"{scene.id} pass 2", settings.progress):
             _, tile_stats, summary = dask.compute(store, tile_stats, summary_total)

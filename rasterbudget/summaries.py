@@ -81,13 +81,21 @@ def class_histograms(
     moments = np.zeros((len(class_codes), len(names), len(CLASS_MOMENTS)))
     moments[..., 3] = np.inf
     moments[..., 4] = -np.inf
-    present = set(np.unique(codes).tolist())
-    for k, code in enumerate(class_codes):
-        if code not in present:
-            continue
-        in_class = codes == code
-        for v, name in enumerate(names):
-            x = values[name][in_class]
+    # Pixels grouped by class with one stable sort of the codes (a radix sort on uint8), so each
+    # variable is gathered once rather than once per class; within a class the pixels keep their
+    # row-major order, so sums are the same as with a boolean mask per class.
+    flat_codes = np.asarray(codes).reshape(-1)
+    as_bytes = flat_codes.size and 0 <= flat_codes.min() and flat_codes.max() < 256
+    order = np.argsort(flat_codes.astype(np.uint8) if as_bytes else flat_codes, kind="stable")
+    sorted_codes = flat_codes[order]
+    ranges = [
+        (k, *np.searchsorted(sorted_codes, [code, code + 1])) for k, code in enumerate(class_codes)
+    ]
+    ranges = [(k, lo, hi) for k, lo, hi in ranges if hi > lo]
+    for v, name in enumerate(names):
+        grouped = np.asarray(values[name]).reshape(-1)[order]
+        for k, lo, hi in ranges:
+            x = grouped[lo:hi]
             x = x[np.isfinite(x)].astype(np.float64)
             if not x.size:
                 continue

@@ -448,19 +448,27 @@ def sensible_heat_block(
     h_prev = np.full(where.size, np.nan)
     h_flat, conv_flat = h.reshape(-1), converged.reshape(-1)
     length_flat = None if inverse_length_out is None else inverse_length_out.reshape(-1)
+    neutral = initial_inverse_length is None  # the first round: 1/L = 0, so psi = 0
     for _ in range(max_iterations):
         if where.size == 0:
             break
-        u_star, rah = _resistance(wind, blending_height, z0m, inverse_length)
+        if neutral:
+            u_star = turbulence.friction_velocity(wind, blending_height, z0m)
+            rah = turbulence.aerodynamic_resistance(u_star, Z1, Z2)
+        else:
+            u_star, rah = _resistance(wind, blending_height, z0m, inverse_length)
+        neutral = False
         h_new = turbulence.sensible_heat_flux(rho, dtc, rah)
         h_flat[where] = h_new
         if length_flat is not None:
             length_flat[where] = inverse_length
         done = np.abs(h_new - h_prev) < tolerance
-        conv_flat[where[done]] = True
-        keep = ~done
-        inverse_length = _inverse_obukhov(rho[keep], u_star[keep], ts[keep], h_new[keep])
-        where, z0m, rho, ts, dtc, wind, h_prev = (
-            x[keep] for x in (where, z0m, rho, ts, dtc, wind, h_new)
-        )
+        if done.any():  # shrink the working set to the pixels still iterating
+            conv_flat[where[done]] = True
+            keep = ~done
+            where, z0m, rho, ts, dtc, wind, u_star, h_new = (
+                x[keep] for x in (where, z0m, rho, ts, dtc, wind, u_star, h_new)
+            )
+        inverse_length = _inverse_obukhov(rho, u_star, ts, h_new)
+        h_prev = h_new
     return h, converged | ~active
