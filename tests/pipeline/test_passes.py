@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections import Counter
 
+import pytest
 import rasterio
 
 from rasterbudget import grid, pipeline
@@ -13,7 +14,14 @@ from rasterbudget.recipe import parse_recipe
 from ..conftest import demo_recipe_dict
 
 
-def test_each_input_is_read_twice_and_each_block_computed_once(tmp_path, monkeypatch):
+@pytest.mark.parametrize(
+    "tile_size",
+    [
+        48,  # tiles inside chunks: one task per chunk computes, writes and summarises its block
+        50,  # tiles straddle chunks: blocks are assembled, stored and rechunked into tiles
+    ],
+)
+def test_each_input_is_read_twice_and_each_block_computed_once(tmp_path, monkeypatch, tile_size):
     pixels_read: Counter = Counter()
     original_read = grid.read_window
 
@@ -36,7 +44,9 @@ def test_each_input_is_read_twice_and_each_block_computed_once(tmp_path, monkeyp
     monkeypatch.setattr(pipeline, "pass1_block", pass1)
     monkeypatch.setattr(pipeline, "pass2_block", pass2)
     recipe = parse_recipe(demo_recipe_dict())
-    settings = pipeline.RunSettings(out_dir=tmp_path, chunk_size=96, tile_size=50, quicklook=True)
+    settings = pipeline.RunSettings(
+        out_dir=tmp_path, chunk_size=96, tile_size=tile_size, quicklook=True
+    )
     result = pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)
 
     with rasterio.open(result.outputs["net_radiation"]) as src:
