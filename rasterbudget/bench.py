@@ -11,6 +11,9 @@ One bench run
    - **floor**: every input read once, window by window, and every output raster the pipeline
      writes (same names, data types and creation options) written from those values, with no
      physics: the cost no implementation can avoid;
+   - **two-pass floor**: a pass that only reads every input, then the floor: the least any method
+     can cost that needs an image-wide reduction before its per-pixel pass, as the anchor and
+     edges methods do (each input read twice);
    - **pipeline**: the full run of one scene (anchor calibration, both passes, tile and class
      summaries, quick-look, manifest) with the chosen chunk size on the threaded scheduler;
    - **whole-array** (optional): the same equations on whole arrays held in memory, on one thread:
@@ -18,7 +21,8 @@ One bench run
      it is skipped above ``max_whole_array`` pixels on a side unless asked for;
 
 3. repeats each ``repeat`` times and reports the median wall time, megapixels per second, the
-   peak resident memory of each, and the ratios pipeline / floor and whole-array / pipeline.
+   peak resident memory of each, and the ratios pipeline / floor, pipeline / two-pass floor and
+   whole-array / pipeline.
 """
 
 from __future__ import annotations
@@ -134,8 +138,12 @@ def _load(recipe_path: Path):
     return load_recipe(recipe_path), load_class_table(None)
 
 
-def floor_phase(recipe_path: Path, out_dir: Path, chunk: int) -> float:
-    """Read every input once and write every pipeline output raster; no physics [s]."""
+def floor_phase(recipe_path: Path, out_dir: Path, chunk: int, passes: int = 1) -> float:
+    """Read every input once and write every pipeline output raster; no physics [s].
+
+    ``passes = 2``: first a pass that only reads every input (as the pipeline's pass 1 does), then
+    the read-and-write pass: the floor of any method that needs an image-wide reduction first.
+    """
     import dask
     import dask.array as da
     import rasterio
@@ -161,8 +169,25 @@ def floor_phase(recipe_path: Path, out_dir: Path, chunk: int) -> float:
         fields = [lst * (0.5 + 0.1 * k) + albedo * 100.0 * k + ndvi for k in range(len(names) - 1)]
         return np.stack([*fields, codes + (z > 2000)])
 
+    def read_only(r0: int, r1: int, c0: int, c1: int) -> int:
+        window = Window(c0, r0, c1 - c0, r1 - r0)
+        valid = 0
+        for path in inputs.values():
+            with rasterio.open(path) as src:
+                valid += int(np.count_nonzero(np.isfinite(src.read(1, window=window))))
+        return valid
+
     rows = [*range(0, grid.height, chunk), grid.height]
     cols = [*range(0, grid.width, chunk), grid.width]
+    if passes == 2:
+        with rasterio.Env(**GDAL_OPTIONS):
+            dask.compute(
+                *[
+                    dask.delayed(read_only)(r0, r1, c0, c1)
+                    for r0, r1 in itertools.pairwise(rows)
+                    for c0, c1 in itertools.pairwise(cols)
+                ]
+            )
     stacked = da.block(
         [
             [
@@ -233,8 +258,8 @@ def _peak_rss_mb() -> float:
 def _child_main(argv: list[str]) -> None:
     phase, recipe, out, chunk = argv[0], Path(argv[1]), Path(argv[2]), int(argv[3])
     workers = int(argv[4]) if len(argv) > 4 else 0
-    if phase == "floor":
-        seconds = floor_phase(recipe, out, chunk)
+    if phase in ("floor", "two_pass_floor"):
+        seconds = floor_phase(recipe, out, chunk, passes=2 if phase == "two_pass_floor" else 1)
     else:
         seconds = pipeline_phase(recipe, out, chunk, phase == "whole_array", workers)
     peak = _peak_rss_mb() + sum(_WORKER_PEAKS)  # client and workers together
@@ -282,7 +307,7 @@ def run_bench(
         recipe = make_synthetic_scene(work / "scene", size, tiny)
         generate_s = time.perf_counter() - t0
         input_mb = sum(p.stat().st_size for p in (work / "scene").glob("*.tif")) / 1e6
-        phases = ["floor", "pipeline"]
+        phases = ["floor", "two_pass_floor", "pipeline"]
         if whole_array or (whole_array is None and size <= max_whole_array):
             phases.append("whole_array")
         runs: dict[str, list[dict]] = {p: [] for p in phases}
@@ -313,6 +338,9 @@ def run_bench(
         result[f"{phase}_mpx_per_s"] = round(megapixels / seconds, 3)
         result[f"{phase}_peak_rss_mb"] = round(max(r["peak_rss_mb"] for r in items), 1)
     result["pipeline_over_floor"] = round(result["pipeline_s"] / result["floor_s"], 3)
+    result["pipeline_over_two_pass_floor"] = round(
+        result["pipeline_s"] / result["two_pass_floor_s"], 3
+    )
     if "whole_array_s" in result:
         result["whole_array_over_pipeline"] = round(
             result["whole_array_s"] / result["pipeline_s"], 3
@@ -327,15 +355,18 @@ def format_table(result: dict) -> str:
         f"chunk {result['chunk_size']}, {result['cores']} cores, pipeline on "
         f"{result['workers']}{' worker processes' if result['workers'] != 'threads' else ''}, "
         f"median of {result['repeat']}",
-        f"{'phase':<12}{'seconds':>10}{'Mpx/s':>10}{'peak MB':>10}",
+        f"{'phase':<16}{'seconds':>10}{'Mpx/s':>10}{'peak MB':>10}",
     ]
-    for phase in ("floor", "pipeline", "whole_array"):
+    for phase in ("floor", "two_pass_floor", "pipeline", "whole_array"):
         if f"{phase}_s" in result:
             lines.append(
-                f"{phase:<12}{result[f'{phase}_s']:>10.2f}{result[f'{phase}_mpx_per_s']:>10.2f}"
+                f"{phase:<16}{result[f'{phase}_s']:>10.2f}{result[f'{phase}_mpx_per_s']:>10.2f}"
                 f"{result[f'{phase}_peak_rss_mb']:>10.0f}"
             )
-    lines.append(f"pipeline / floor: {result['pipeline_over_floor']:.2f}")
+    lines.append(
+        f"pipeline / floor: {result['pipeline_over_floor']:.2f}   "
+        f"pipeline / two-pass floor: {result['pipeline_over_two_pass_floor']:.2f}"
+    )
     if "whole_array_over_pipeline" in result:
         lines.append(f"whole-array / pipeline: {result['whole_array_over_pipeline']:.2f}")
     return "\n".join(lines)

@@ -446,8 +446,9 @@ def bench(
 
     Prints a table and, last, one JSON line: wall seconds, megapixels per second and peak
     resident memory of the floor (read every input, write every output, no physics), the
-    pipeline, and the whole-array version; and the ratios pipeline / floor and whole-array /
-    pipeline. See the README's Performance section for how to read it.
+    two-pass floor (a read-only pass over every input first, as the methods' pass 1), the
+    pipeline, and the whole-array version; and the ratios pipeline / floor, pipeline / two-pass
+    floor and whole-array / pipeline. See the README's Performance section for how to read it.
 
     \b
     Example:

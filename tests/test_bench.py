@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 import numpy as np
+import pytest
 import rasterio
 from click.testing import CliRunner
 
@@ -39,9 +40,12 @@ def test_bench_command_prints_a_table_and_a_json_line(tmp_path):
     )
     assert result.exit_code == 0, result.output
     figures = json.loads(result.output.strip().splitlines()[-1])
-    for phase in ("floor", "pipeline", "whole_array"):
+    for phase in ("floor", "two_pass_floor", "pipeline", "whole_array"):
         assert figures[f"{phase}_s"] > 0 and figures[f"{phase}_peak_rss_mb"] > 50
     assert figures["pipeline_over_floor"] > 1.0  # physics costs something
+    assert figures["pipeline_over_two_pass_floor"] == pytest.approx(
+        figures["pipeline_s"] / figures["two_pass_floor_s"], rel=1e-2
+    )
     assert "pipeline / floor" in result.output
     # the pipeline really ran: its fluxes are on the synthetic grid
     with rasterio.open(tmp_path / "out_pipeline" / "bench" / "latent_heat_flux.tif") as src:
