@@ -293,10 +293,8 @@ def _resistance(
 
 
 def _inverse_obukhov(rho, u_star, ts, h):
-    # 1/L = -k g H / (rho cp u*^3 Ts): zero for neutral, finite everywhere (avoids inf * 0).
-    length = turbulence.monin_obukhov_length(rho, u_star, ts, h)
-    with np.errstate(divide="ignore"):
-        return np.where(np.isfinite(length), 1.0 / length, 0.0)
+    # 1/L rather than L: zero for neutral, finite everywhere (no inf * 0 in z/L).
+    return turbulence.inverse_monin_obukhov_length(rho, u_star, ts, h)
 
 
 @dataclass(frozen=True)

@@ -32,6 +32,7 @@ __all__ = [
     "air_density",
     "air_pressure",
     "friction_velocity",
+    "inverse_monin_obukhov_length",
     "latent_heat_of_vaporization",
     "monin_obukhov_length",
     "psychrometric_constant",
@@ -404,6 +405,45 @@ def monin_obukhov_length(
     out = np.full(shape, np.inf, dtype=np.result_type(numerator, denominator, 1.0))
     np.divide(numerator, denominator, out=out, where=denominator != 0.0)  # Monin & Obukhov
     return out[()]
+
+
+def inverse_monin_obukhov_length(
+    air_density: ArrayLike,
+    friction_velocity: ArrayLike,
+    surface_temperature: ArrayLike,
+    sensible_heat_flux: ArrayLike,
+) -> np.ndarray | float:
+    r"""Inverse of the Monin–Obukhov length, :math:`1/L`.
+
+    Parameters
+    ----------
+    air_density : array_like
+        Air density :math:`\rho`. [kg m-3]
+    friction_velocity : array_like
+        Friction velocity :math:`u_*`, positive. [m s-1]
+    surface_temperature : array_like
+        Surface temperature, the reference temperature for buoyancy. [K]
+    sensible_heat_flux : array_like
+        Sensible heat flux :math:`H`, positive upwards. [W m-2]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`1/L`; negative when unstable (:math:`H > 0`), 0 when neutral. [m-1]
+
+    Notes
+    -----
+    The reciprocal of :func:`monin_obukhov_length` (Monin & Obukhov 1954):
+
+    .. math:: \frac{1}{L} = -\frac{k g H}{\rho c_p u_*^3 T_s}
+
+    finite for every positive :math:`\rho`, :math:`u_*` and :math:`T_s`, so stability iterations
+    need no special case for the neutral :math:`H = 0` (where :math:`L` is infinite).
+    """
+    numerator = -VON_KARMAN * GRAVITY * np.asarray(sensible_heat_flux)
+    return (
+        numerator / (air_density * SPECIFIC_HEAT_AIR * friction_velocity**3 * surface_temperature)
+    )[()]
 
 
 def _capped_z_over_l(z_over_l: ArrayLike, max_stable_z_over_l: float) -> np.ndarray | float:

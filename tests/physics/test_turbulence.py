@@ -167,6 +167,17 @@ def test_monin_obukhov_length():
     assert length[2] == np.inf
 
 
+def test_inverse_monin_obukhov_length_is_the_reciprocal_and_zero_when_neutral():
+    h = np.array([200.0, -30.0, 0.0, 1e-9])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        inverse = turbulence.inverse_monin_obukhov_length(1.1, 0.3, 310.0, h)
+    length = turbulence.monin_obukhov_length(1.1, 0.3, 310.0, h)
+    np.testing.assert_allclose(inverse[[0, 1, 3]], 1.0 / length[[0, 1, 3]], rtol=1e-14)
+    assert inverse[2] == 0.0
+    assert np.ndim(turbulence.inverse_monin_obukhov_length(1.0, 0.25, 300.0, 150.0)) == 0
+
+
 @pytest.mark.parametrize(("h", "expected_sign"), [(150.0, -1.0), (-20.0, 1.0), (0.0, np.inf)])
 def test_monin_obukhov_length_scalar(h, expected_sign):
     length = turbulence.monin_obukhov_length(1.0, 0.25, 300.0, h)
