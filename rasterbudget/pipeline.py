@@ -684,6 +684,7 @@ class Pass2Parameters:
     max_iterations: int = 30
     edges: edge_method.Edges | None = None
     members: tuple[tuple[Member, anchor_method.Calibration], ...] = ()
+    stability_start: anchor_method.StabilityStart | None = None
 
 
 def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
@@ -714,6 +715,7 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
             datum_surface_temperature=state["datum_surface_temperature"],
             inverse_length_out=inverse_length,
             blending_wind_speed=state["blending_wind_speed"],
+            start=p.stability_start,
         )
     le_raw = partition.latent_heat_residual(rn, g, h)
     # LE may exceed Rn - G only by max_evaporative_fraction (advection: H < 0); default 1
@@ -986,6 +988,13 @@ def _calibrate_anchors(
         "explicit_hot": explicit["hot"],
         "blending_height": s.blending_height_m,
         "max_iterations": s.max_iterations,
+        # where each pixel's stability iteration starts: the anchors' mean air density
+        "stability_start": anchor_method.stability_start(
+            calibration,
+            ctx.lookups.roughness_length,
+            0.5 * (chosen["cold"].air_density + chosen["hot"].air_density),
+            s.blending_height_m,
+        ),
     }
     facts = {
         "anchors": {k: v.as_dict() | _anchor_xy(grid, v) for k, v in chosen.items()},

@@ -399,6 +399,72 @@ def calibrate(
     )
 
 
+@dataclass(frozen=True)
+class StabilityStart:
+    """Converged 1/L of the scene's calibration on a grid of roughness length and dT, where the
+    per-pixel stability iteration starts (see :func:`stability_start`)."""
+
+    roughness_lengths: np.ndarray  # sorted, unique [m]
+    first_temperature_difference: float  # [K]
+    temperature_difference_step: float  # [K]
+    inverse_length: np.ndarray  # (roughness, dT) [m-1]
+
+    def lookup(
+        self, roughness_length: np.ndarray, temperature_difference: np.ndarray
+    ) -> np.ndarray:
+        """1/L [m-1] for each pixel: at the tabulated roughness length at or above its own (its
+        own for class values), linear in dT, held at the table's ends."""
+        n_z0, n_dt = self.inverse_length.shape
+        row = np.searchsorted(self.roughness_lengths, roughness_length).clip(0, n_z0 - 1)
+        position = (
+            (temperature_difference - self.first_temperature_difference)
+            / self.temperature_difference_step
+        ).clip(0.0, n_dt - 1.000001)
+        column = position.astype(np.intp)
+        weight = position - column
+        flat = self.inverse_length.reshape(-1)
+        index = row * n_dt + column
+        return flat[index] * (1.0 - weight) + flat[index + 1] * weight
+
+
+def stability_start(
+    calibration: Calibration,
+    roughness_lengths: np.ndarray,
+    air_density: float,
+    blending_height: float,
+    surface_temperature_range: tuple[float, float] = (200.0, 350.0),
+    points: int = 601,
+) -> StabilityStart | None:
+    """Table of converged 1/L for every roughness length of the class table and for dT over the
+    scene's plausible surface temperatures, at the scene's reference air density [kg m-3] and
+    the calibration's wind; None when dT does not rise with Ts (b <= 0).
+
+    Starting each pixel's iteration here rather than at neutral halves its rounds (the table is
+    computed once per scene and looked up per pixel, so the start does not depend on chunking);
+    each pixel still iterates to the same tolerance, so H moves by at most about that tolerance.
+    """
+    z0 = np.unique(np.asarray(roughness_lengths, dtype=np.float64))
+    z0 = z0[np.isfinite(z0) & (z0 > 0)]
+    if calibration.b <= 0 or z0.size == 0:
+        return None
+    t_low, t_high = surface_temperature_range
+    ts = np.linspace(t_low, t_high, points)
+    dt = calibration.a + calibration.b * ts
+    grid_ts, grid_z0 = np.meshgrid(ts, z0)
+    inverse_length = np.zeros(grid_ts.shape)
+    sensible_heat_block(
+        grid_ts,
+        grid_z0,
+        np.full(grid_ts.shape, air_density),
+        calibration,
+        blending_height,
+        max_iterations=60,
+        tolerance=1e-4,
+        inverse_length_out=inverse_length,
+    )
+    return StabilityStart(z0, float(dt[0]), float(dt[1] - dt[0]), np.nan_to_num(inverse_length))
+
+
 def sensible_heat_block(
     surface_temperature: np.ndarray,
     roughness_length: np.ndarray,
@@ -411,13 +477,17 @@ def sensible_heat_block(
     initial_inverse_length: np.ndarray | None = None,
     inverse_length_out: np.ndarray | None = None,
     blending_wind_speed: np.ndarray | None = None,
+    start: StabilityStart | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Per-pixel sensible heat flux [W m-2] and a convergence mask, for one block.
 
     ``initial_inverse_length`` [m-1] starts the stability iteration from a known state (the
-    ensemble starts each member from the central run's converged 1/L); ``inverse_length_out``, an
-    array of the block's shape, receives the converged 1/L. ``blending_wind_speed`` [m s-1]
-    gives each pixel its own wind (gridded weather) instead of the calibration's one value.
+    ensemble starts each member from the central run's converged 1/L); without it, ``start``
+    (:func:`stability_start`) gives each pixel the converged 1/L of the scene's reference air
+    for its roughness length and dT, and without either the iteration starts neutral.
+    ``inverse_length_out``, an array of the block's shape, receives the converged 1/L.
+    ``blending_wind_speed`` [m s-1] gives each pixel its own wind (gridded weather) instead of
+    the calibration's one value.
 
     dT = a + b Ts_datum (Ts_datum: the elevation-adjusted surface temperature the anchors were
     calibrated on; the plain Ts when not given), then H = rho cp dT / rah with rah iterated to
@@ -443,10 +513,13 @@ def sensible_heat_block(
         np.ravel(x)[where]
         for x in (roughness_length, air_density, surface_temperature, dt, wind_field)
     )
-    if initial_inverse_length is None:
-        inverse_length = np.zeros(where.size)
-    else:
+    if initial_inverse_length is not None:
         inverse_length = np.nan_to_num(np.ravel(initial_inverse_length)[where])
+    elif start is not None:
+        inverse_length = start.lookup(z0m, dtc)
+    else:
+        inverse_length = np.zeros(where.size)
+    neutral = initial_inverse_length is None and start is None
     h_flat, conv_flat = h.reshape(-1), converged.reshape(-1)
     length_flat = None if inverse_length_out is None else inverse_length_out.reshape(-1)
     # Pieces small enough for the iteration's temporaries to stay in the CPU cache (35 % faster
@@ -457,7 +530,7 @@ def sensible_heat_block(
         _iterate_pixels(
             (where[piece], z0m[piece], rho[piece], ts[piece], dtc[piece], wind[piece]),
             inverse_length[piece],
-            initial_inverse_length is None,
+            neutral,
             (h_flat, conv_flat, length_flat),
             blending_height,
             max_iterations,

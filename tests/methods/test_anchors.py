@@ -142,3 +142,55 @@ def test_each_pixel_is_independent_of_its_block(ts, split):
     b, conv_b = anchors.sensible_heat_block(ts[split:], z0m[split:], rho[split:], CAL, 200.0)
     np.testing.assert_array_equal(np.concatenate([a, b]), whole)
     np.testing.assert_array_equal(np.concatenate([conv_a, conv_b]), conv_whole)
+
+
+def test_stability_start_reaches_the_same_h_in_fewer_rounds(monkeypatch):
+    """Starting each pixel at the tabulated converged 1/L moves H by less than the iteration's
+    tolerance and needs fewer rounds than starting neutral."""
+    rng = np.random.default_rng(7)
+    ts = rng.uniform(288.0, 332.0, 5000)
+    z0m = rng.choice([0.0002, 0.005, 0.03, 0.1, 0.8], ts.size)
+    rho = rng.uniform(0.95, 1.05, ts.size)  # the table is made at one air density
+    start = anchors.stability_start(
+        CAL, np.array([0.0002, 0.005, 0.03, 0.1, 0.8, np.nan]), 1.0, 200.0
+    )
+
+    pixel_rounds = []
+    original = anchors._resistance
+
+    def counting(u_blend, height, roughness, inverse_length):
+        pixel_rounds.append(np.size(inverse_length))
+        return original(u_blend, height, roughness, inverse_length)
+
+    monkeypatch.setattr(anchors, "_resistance", counting)
+    neutral, conv_neutral = anchors.sensible_heat_block(ts, z0m, rho, CAL, 200.0)
+    neutral_rounds = sum(pixel_rounds) + ts.size  # the neutral first round skips _resistance
+    pixel_rounds.clear()
+    warm, conv_warm = anchors.sensible_heat_block(ts, z0m, rho, CAL, 200.0, start=start)
+    warm_rounds = sum(pixel_rounds)
+
+    assert conv_neutral.all() and conv_warm.all()
+    # Each run stops once a round moves H by < 0.1 W m-2, which leaves it within about
+    # 0.1 c / (1 - c) of the fixed point for a contraction factor c of the iteration: 0.3 W m-2 at
+    # c = 0.75, for the few slow pixels near neutral.
+    np.testing.assert_allclose(warm, neutral, atol=0.5, rtol=0)
+    assert np.median(np.abs(warm - neutral)) < 0.01
+    assert warm_rounds < 0.6 * neutral_rounds
+
+
+def test_stability_start_lookup_returns_the_table_at_its_nodes():
+    start = anchors.stability_start(CAL, np.array([0.005, 0.1]), 1.0, 200.0, points=11)
+    dt = start.first_temperature_difference + start.temperature_difference_step * np.arange(11)
+    for row, z0m in enumerate(start.roughness_lengths):
+        got = start.lookup(np.full(11, z0m), dt)
+        np.testing.assert_allclose(got, start.inverse_length[row], rtol=1e-5, atol=1e-12)
+    # beyond the table's ends the end values hold
+    ends = start.lookup(np.array([0.005, 0.005]), dt[[0, -1]] + np.array([-50.0, 50.0]))
+    np.testing.assert_allclose(ends, start.inverse_length[0, [0, -1]], rtol=1e-5)
+    # hot pixels are unstable (1/L < 0), the coldest stable or neutral
+    assert start.inverse_length[0, -1] < 0 <= start.inverse_length[0, 0] + 1e-12
+
+
+def test_no_stability_start_when_dt_does_not_rise_with_ts():
+    flat = anchors.Calibration(1.0, 0.0, 1, True, 0, 0, 0, 0, 0, 0, 5.0)
+    assert anchors.stability_start(flat, np.array([0.1]), 1.0, 200.0) is None
