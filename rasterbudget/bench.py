@@ -158,24 +158,23 @@ def floor_phase(recipe_path: Path, out_dir: Path, chunk: int, passes: int = 1) -
     names = [*FLUX_OUTPUTS, QA_OUTPUT]
     started = time.perf_counter()
 
-    def block(r0: int, r1: int, c0: int, c1: int) -> np.ndarray:
+    def read_inputs(r0: int, r1: int, c0: int, c1: int) -> list[np.ndarray]:
         window = Window(c0, r0, c1 - c0, r1 - r0)
         values = []
         for path in inputs.values():
             with rasterio.open(path) as src:
                 values.append(src.read(1, window=window).astype(np.float32))
-        albedo, lst, ndvi, codes, z = values
+        return values
+
+    def block(r0: int, r1: int, c0: int, c1: int) -> np.ndarray:
+        albedo, lst, ndvi, codes, z = read_inputs(r0, r1, c0, c1)
         # Output-like fields from the inputs (one multiply-add each): realistic to compress.
         fields = [lst * (0.5 + 0.1 * k) + albedo * 100.0 * k + ndvi for k in range(len(names) - 1)]
         return np.stack([*fields, codes + (z > 2000)])
 
     def read_only(r0: int, r1: int, c0: int, c1: int) -> int:
-        window = Window(c0, r0, c1 - c0, r1 - r0)
-        valid = 0
-        for path in inputs.values():
-            with rasterio.open(path) as src:
-                valid += int(np.count_nonzero(np.isfinite(src.read(1, window=window))))
-        return valid
+        # a small result per block, as pass 1's histograms: the reads are the cost
+        return sum(int(np.count_nonzero(np.isfinite(v))) for v in read_inputs(r0, r1, c0, c1))
 
     rows = [*range(0, grid.height, chunk), grid.height]
     cols = [*range(0, grid.width, chunk), grid.width]

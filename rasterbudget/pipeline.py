@@ -889,7 +889,7 @@ def _pass2_write_block(ctx: BlockContext, p: Pass2Parameters, location, summary_
     (r0, r1), (c0, c1) = location
     window = (slice(r0, r1), slice(c0, c1))
     for k, dtype, target in targets:
-        target[window] = block[k].astype(dtype)
+        target[window] = block[k].astype(dtype, copy=False)  # float32 outputs: no copy
     return _block_summary(block, *summary_args)
 
 

@@ -433,14 +433,19 @@ def inverse_monin_obukhov_length(
 
     Notes
     -----
-    The reciprocal of :func:`monin_obukhov_length` (Monin & Obukhov 1954):
+    The reciprocal of :func:`monin_obukhov_length` (Monin & Obukhov 1954 [1]_):
 
     .. math:: \frac{1}{L} = -\frac{k g H}{\rho c_p u_*^3 T_s}
 
     finite for every positive :math:`\rho`, :math:`u_*` and :math:`T_s`, so stability iterations
     need no special case for the neutral :math:`H = 0` (where :math:`L` is infinite).
+
+    References
+    ----------
+    .. [1] Monin and Obukhov (1954), Trudy Geofiz. Inst. Akad. Nauk SSSR 24, 163–187
+       (from memory).
     """
-    numerator = -VON_KARMAN * GRAVITY * np.asarray(sensible_heat_flux)
+    numerator = -VON_KARMAN * GRAVITY * np.asarray(sensible_heat_flux)  # Monin & Obukhov
     return (
         numerator / (air_density * SPECIFIC_HEAT_AIR * friction_velocity**3 * surface_temperature)
     )[()]

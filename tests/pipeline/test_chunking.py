@@ -68,6 +68,11 @@ def test_tile_and_class_summaries_agree_whether_tiles_lie_inside_blocks_or_not(t
     _run(tmp_path / "inside", 128, 64)
     _run(tmp_path / "across", 208, 64)
     for scene in ("kessendry_20260614", "kessendry_20260823"):
+        # the rasters too: written by each block's own task (inside) or by da.store (across)
+        for name in [*FLUX_OUTPUTS, "qa_flags"]:
+            a = rasterio.open(tmp_path / "inside" / scene / f"{name}.tif").read(1)
+            b = rasterio.open(tmp_path / "across" / scene / f"{name}.tif").read(1)
+            np.testing.assert_allclose(a, b, rtol=1e-6, atol=1e-6, equal_nan=True, err_msg=name)
         for table in ("tiles.csv", "classes.csv"):
             with (tmp_path / "inside" / scene / table).open() as f:
                 rows_a = list(csv.DictReader(f))
