@@ -131,9 +131,11 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         )
     constants, facts = scene_constants(scene, grid)
     lines.append(
-        f"  sun elevation at the scene centre {facts['sun_elevation_deg_centre']:.1f} deg "
-        f"({facts['centre_lat']:.3f} N, {facts['centre_lon']:.3f} E)"
+        f"  sun elevation at the scene centre {facts['sun_elevation_deg_centre']:.1f} deg, "
+        f"azimuth {facts['sun_azimuth_deg_centre']:.1f} deg "
+        f"({facts['centre_lat']:.3f} N, {facts['centre_lon']:.3f} E; NREL SPA)"
     )
+    lines.append(f"  sky longwave: {facts['longwave_in']['sky_emissivity']}")
     lookups = ClassLookups.from_table(table)
     ctx = BlockContext(grid=coarse, constants=constants, lookups=lookups, sources=())
     lon, lat = pixel_lonlat(ctx.grid, slice(0, coarse.height), slice(0, coarse.width))

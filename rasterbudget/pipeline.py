@@ -56,12 +56,11 @@ from .paths import is_remote, local_size
 from .physics import partition, radiation, turbulence
 from .physics.constants import SECONDS_PER_HOUR
 from .physics.solar import (
-    cos_solar_zenith,
     daylight_hours,
     extraterrestrial_radiation_daily,
-    hour_angle,
-    inverse_relative_distance,
-    solar_declination,
+    local_hour_angle,
+    local_solar_day_of_year,
+    solar_ephemeris,
     sun_direction,
     surface_normal,
 )
@@ -188,16 +187,20 @@ def scene_centre_lonlat(grid: Grid) -> tuple[float, float]:
 
 
 def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
-    """Scene-wide scalars in SI units, and facts for the manifest. Refuses a sun below limits."""
+    """Scene-wide scalars in SI units, and facts for the manifest. Refuses a sun below limits.
+
+    The overpass geometry (declination, hour angle, Earth-Sun distance) comes from NREL SPA at
+    the scene centre (``solar_ephemeris``); the daily terms (FAO-56) take the local solar date.
+    """
     t = scene.acquired_utc
-    doy = t.timetuple().tm_yday
     utc_hour = t.hour + t.minute / 60 + t.second / 3600
-    decl = float(solar_declination(doy))
-    dr = float(inverse_relative_distance(doy))
     lon, lat = scene_centre_lonlat(grid)
     lat_rad = math.radians(lat)
-    cos_z = float(cos_solar_zenith(lat_rad, decl, hour_angle(utc_hour, lon, doy)))
-    elevation_deg = math.degrees(math.asin(max(-1.0, min(1.0, cos_z))))
+    doy = local_solar_day_of_year(t, lon)
+    sun = solar_ephemeris(t, lat, lon, scene.overpass.station_elevation_m)
+    dr = sun.inverse_distance
+    cos_z = math.cos(math.radians(sun.zenith))
+    elevation_deg = 90.0 - sun.zenith
     limit = scene.radiation.min_sun_elevation_deg
     if elevation_deg < limit:
         where = "below the horizon" if elevation_deg <= 0 else f"only {elevation_deg:.1f}° high"
@@ -216,6 +219,9 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
             f"scene {scene.id}: radiation.longwave_in = 'brutsaert' needs "
             "overpass.relative_humidity_pct; give it or use 'bastiaanssen'."
         )
+    longwave_in = scene.radiation.longwave_in
+    if longwave_in == "auto":  # the sky's vapour when known (closer to towers, see README)
+        longwave_in = "brutsaert" if ea is not None else "bastiaanssen"
     tau_station = None
     if ow.shortwave_in_w_m2 is not None:
         tau_station = ow.shortwave_in_w_m2 / (1367.0 * cos_z * dr)
@@ -240,13 +246,14 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
     constants = SceneConstants(
         day_of_year=doy,
         utc_hour=utc_hour,
-        declination=decl,
+        declination=sun.declination,
+        greenwich_hour_angle=sun.greenwich_hour_angle,
         inverse_distance=dr,
         air_temperature=ta,
         station_elevation=ow.station_elevation_m,
         vapour_pressure=ea,
         station_transmissivity=tau_station,
-        longwave_in_method=scene.radiation.longwave_in,
+        longwave_in_method=longwave_in,
         emissivity_method=scene.radiation.emissivity,
         ground_heat_method=scene.radiation.ground_heat,
         min_cos_incidence=math.sin(math.radians(limit)),
@@ -263,7 +270,30 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
         max_evaporative_fraction=scene.residual.max_evaporative_fraction,
         **station_reference_et(scene, lat_rad, lon, doy, utc_hour, cos_z, dr, ea, ea_daily),
     )
-    facts = {"centre_lon": lon, "centre_lat": lat, "sun_elevation_deg_centre": elevation_deg}
+    facts = {
+        "centre_lon": lon,
+        "centre_lat": lat,
+        "sun_elevation_deg_centre": elevation_deg,
+        "sun_azimuth_deg_centre": sun.azimuth,
+        "sun": {
+            "algorithm": "NREL SPA (Reda & Andreas 2004) via pvlib, at the scene centre",
+            "elevation_deg": elevation_deg,
+            "azimuth_deg": sun.azimuth,
+            "declination_deg": math.degrees(sun.declination),
+            "equation_of_time_min": sun.equation_of_time,
+            "earth_sun_distance_au": sun.inverse_distance**-0.5,
+            "local_solar_day_of_year": doy,
+        },
+        "longwave_in": {
+            "method": longwave_in,
+            "asked": scene.radiation.longwave_in,
+            "sky_emissivity": (
+                "Brutsaert (1975), from overpass vapour pressure and air temperature"
+                if longwave_in == "brutsaert"
+                else "Bastiaanssen (1995), from shortwave transmissivity"
+            ),
+        },
+    }
     return constants, facts
 
 
@@ -288,6 +318,25 @@ def station_reference_et(
 
     ow, dw, ref = scene.overpass, scene.daily, scene.reference_et
     hourly = daily = None
+    ra_day = float(extraterrestrial_radiation_daily(lat_rad, doy))
+    if dw.shortwave_mj_m2 is not None:
+        rs_day = dw.shortwave_mj_m2
+    else:
+        n_max = daylight_hours(lat_rad, doy)
+        rs_day = float(
+            radiation.shortwave_daily_from_sunshine(
+                ra_day, min(dw.sunshine_hours, float(n_max)), n_max
+            )
+        )
+    # ASCE-EWRI (2005): with the sun below 0.3 rad at mid-hour, the hour's own Rs/Rso is not
+    # trusted and the cloudiness of the last hour above it is carried. A scene has one hour, so
+    # the day's Rs/Rso stands in for it.
+    rso_day = float(radiation.clear_sky_shortwave_daily(ra_day, ow.station_elevation_m))
+    low_sun_cloudiness = float(
+        radiation.cloudiness_factor(
+            radiation.relative_shortwave(rs_day, rso_day, radiation.MIN_CLEAR_SKY_SHORTWAVE_DAILY)
+        )
+    )
     missing_hourly = [
         k
         for k, v in (
@@ -314,20 +363,11 @@ def station_reference_et(
                 ow.station_elevation_m,
                 vapour_pressure=ea,
                 reference=ref.surface,
+                low_sun_cloudiness=low_sun_cloudiness,
             )
         )
     missing_daily = [] if dw.wind_speed_m_s is not None else ["daily.wind_speed_m_s"]
     if not missing_daily:
-        if dw.shortwave_mj_m2 is not None:
-            rs_day = dw.shortwave_mj_m2
-        else:
-            ra = extraterrestrial_radiation_daily(lat_rad, doy)
-            n_max = daylight_hours(lat_rad, doy)
-            rs_day = float(
-                radiation.shortwave_daily_from_sunshine(
-                    ra, min(dw.sunshine_hours, float(n_max)), n_max
-                )
-            )
         daily = float(
             reference_et.reference_et_daily(
                 kelvin(dw.tmax_c),
@@ -420,7 +460,7 @@ def pixel_geometry(
     lon_nodes, lat_nodes = np.asarray(lon_nodes), np.asarray(lat_nodes)
     sun = None
     if constants is not None:
-        omega = hour_angle(constants.utc_hour, lon_nodes, constants.day_of_year)
+        omega = local_hour_angle(constants.greenwich_hour_angle, lon_nodes)
         sun_nodes = sun_direction(np.radians(lat_nodes), constants.declination, omega)
         sun = tuple(interpolate(component) for component in sun_nodes)
     return interpolate(lon_nodes), np.radians(interpolate(lat_nodes)), sun

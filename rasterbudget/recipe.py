@@ -162,7 +162,7 @@ class DailyWeather(_Strict):
 class RadiationOptions(_Strict):
     """``[scene.radiation]``: choices in the radiation and ground-heat steps."""
 
-    longwave_in: Literal["bastiaanssen", "brutsaert"] = "bastiaanssen"
+    longwave_in: Literal["auto", "bastiaanssen", "brutsaert"] = "auto"
     emissivity: Literal["class", "ndvi"] = "class"
     ground_heat: Literal["auto", "class"] = "auto"
     min_sun_elevation_deg: float = Field(10.0, ge=0.0, le=60.0)

@@ -19,7 +19,7 @@ from .physics.solar import (
     cos_incidence_on_normal,
     daylight_hours,
     extraterrestrial_radiation_daily,
-    hour_angle,
+    local_hour_angle,
     sun_direction,
 )
 from .qa import QA, QA_NO_FLUXES, QA_NOT_ANCHOR
@@ -36,10 +36,11 @@ PLAUSIBLE_SURFACE_TEMPERATURE = (200.0, 350.0)
 class SceneConstants:
     """Scalars that hold for the whole scene, in SI units and kelvin."""
 
-    day_of_year: int
+    day_of_year: int  # of the local solar date, for the daily terms (FAO-56)
     utc_hour: float
-    declination: float  # [rad]
-    inverse_distance: float  # [-]
+    declination: float  # at overpass, NREL SPA [rad]
+    greenwich_hour_angle: float  # at overpass, NREL SPA; plus longitude: local [rad]
+    inverse_distance: float  # (1 au / Earth-Sun distance)^2 at overpass [-]
     air_temperature: float  # station air temperature at overpass [K]
     station_elevation: float  # [m]
     vapour_pressure: float | None  # at overpass [kPa]
@@ -174,15 +175,13 @@ def surface_block(
     ).astype(np.uint16)
 
     z = np.full(albedo.shape, c.station_elevation) if elevation is None else elevation
+    omega = local_hour_angle(c.greenwich_hour_angle, longitude)
     if sun is None:
-        sun = sun_direction(
-            latitude, c.declination, hour_angle(c.utc_hour, longitude, c.day_of_year)
-        )
+        sun = sun_direction(latitude, c.declination, omega)
     cos_zenith = sun[2]
     if normal is not None:
         cos_theta = cos_incidence_on_normal(normal, sun)
     elif slope is not None:
-        omega = hour_angle(c.utc_hour, longitude, c.day_of_year)
         cos_theta = cos_incidence(latitude, c.declination, omega, slope, aspect)
     else:
         cos_theta = cos_zenith

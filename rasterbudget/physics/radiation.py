@@ -25,15 +25,35 @@ from rasterbudget.physics.constants import (
     STEFAN_BOLTZMANN_DAILY,
 )
 
+RELATIVE_SHORTWAVE_BOUNDS = (0.3, 1.0)
+"""Bounds of the relative shortwave :math:`R_s/R_{so}` in the cloudiness function, daily and
+hourly: ASCE-EWRI (2005), eqs. 18 and 45 (equation numbers from memory). [-]"""
+
+CLOUDINESS_BOUNDS = (0.05, 1.0)
+"""Bounds of the cloudiness function :math:`f_{cd}`, ASCE-EWRI (2005). [-]"""
+
+MIN_CLEAR_SKY_SHORTWAVE_DAILY = 1.0
+"""Daily clear-sky shortwave below which :math:`R_s/R_{so}` says nothing about cloud: in polar
+winter the sun stays within a few degrees of the horizon and a pyranometer's own offset is of
+this order. A rule of this package. [MJ m-2 d-1]"""
+
+RELATIVE_SHORTWAVE_WITHOUT_SUN = 0.6
+""":math:`R_s/R_{so}` taken where the day's clear-sky shortwave is below
+:data:`MIN_CLEAR_SKY_SHORTWAVE_DAILY`: the middle of FAO-56's night-time range, 0.4–0.6 in
+humid and 0.7–0.8 in arid climates (FAO-56 ch. 3, from memory). [-]"""
+
 __all__ = [
     "atmospheric_emissivity_bastiaanssen",
     "atmospheric_emissivity_brutsaert",
     "clear_sky_shortwave_daily",
     "clear_sky_transmissivity",
+    "cloudiness_factor",
     "longwave_emitted",
+    "net_longwave",
     "net_longwave_daily",
     "net_radiation",
     "net_radiation_daily",
+    "relative_shortwave",
     "shortwave_daily_from_sunshine",
     "shortwave_in",
     "surface_emissivity_from_ndvi",
@@ -359,6 +379,113 @@ def shortwave_daily_from_sunshine(
     return (a_s + b_s * sunshine_hours / daylight_hours) * extraterrestrial_radiation  # eq. 35
 
 
+def relative_shortwave(
+    shortwave: ArrayLike,
+    clear_sky_shortwave: ArrayLike,
+    min_clear_sky: float = 0.0,
+    without_sun: ArrayLike = RELATIVE_SHORTWAVE_WITHOUT_SUN,
+) -> np.ndarray | float:
+    r"""Relative shortwave radiation :math:`R_s/R_{so}`, bounded as ASCE-EWRI (2005) requires.
+
+    Parameters
+    ----------
+    shortwave : array_like
+        Measured or computed incoming shortwave :math:`R_s` over the step. [MJ m-2 per step]
+    clear_sky_shortwave : array_like
+        Clear-sky shortwave :math:`R_{so}` over the same step. [MJ m-2 per step]
+    min_clear_sky : float, default 0.0
+        Where :math:`R_{so}` is at or below this, the ratio is not computed and
+        ``without_sun`` is returned. [MJ m-2 per step]
+    without_sun : array_like, default RELATIVE_SHORTWAVE_WITHOUT_SUN
+        The ratio used there. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`R_s/R_{so}` limited to [0.3, 1.0]. [-]
+
+    Notes
+    -----
+    FAO-56 eq. 39 limits the ratio to at most 1.0 [1]_; ASCE-EWRI (2005) bounds it to
+    0.3–1.0 in both its daily and hourly forms [2]_, so that a very dark day (snow on the
+    pyranometer, heavy overcast) cannot turn the net longwave loss negative.
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 39.
+    .. [2] Allen et al. (eds.) (2005), The ASCE Standardized Reference Evapotranspiration
+       Equation, eqs. 18 and 45 (from memory).
+    """
+    rso = np.asarray(clear_sky_shortwave, dtype=float)
+    has_sun = rso > min_clear_sky
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.asarray(shortwave) / np.where(has_sun, rso, 1.0)
+    ratio = np.clip(ratio, *RELATIVE_SHORTWAVE_BOUNDS)
+    return np.where(has_sun, ratio, without_sun)[()]
+
+
+def cloudiness_factor(relative_shortwave: ArrayLike) -> np.ndarray | float:
+    r"""Cloudiness function :math:`f_{cd}` of the net longwave radiation.
+
+    Parameters
+    ----------
+    relative_shortwave : array_like
+        :math:`R_s/R_{so}`, see :func:`relative_shortwave`. [-]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`f_{cd}` in [0.05, 1.0]. [-]
+
+    Notes
+    -----
+    FAO-56 eq. 39 [1]_ and ASCE-EWRI (2005) eqs. 18 and 45 [2]_ (equation numbers from
+    memory):
+
+    .. math:: f_{cd} = 1.35 \frac{R_s}{R_{so}} - 0.35, \qquad 0.05 \le f_{cd} \le 1.0
+
+    References
+    ----------
+    .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 39.
+    .. [2] Allen et al. (eds.) (2005), The ASCE Standardized Reference Evapotranspiration
+       Equation.
+    """
+    return np.clip(1.35 * np.asarray(relative_shortwave) - 0.35, *CLOUDINESS_BOUNDS)[()]
+
+
+def net_longwave(
+    mean_fourth_power_temperature: ArrayLike,
+    vapour_pressure: ArrayLike,
+    cloudiness: ArrayLike,
+    stefan_boltzmann: float,
+) -> np.ndarray | float:
+    r"""Net outgoing longwave radiation over a step, FAO-56 eq. 39 in its general form.
+
+    Parameters
+    ----------
+    mean_fourth_power_temperature : array_like
+        :math:`(T_{max}^4 + T_{min}^4)/2` for a day, :math:`T_{hr}^4` for an hour. [K4]
+    vapour_pressure : array_like
+        Actual vapour pressure :math:`e_a`. [kPa]
+    cloudiness : array_like
+        Cloudiness function :math:`f_{cd}`, see :func:`cloudiness_factor`. [-]
+    stefan_boltzmann : float
+        Stefan–Boltzmann constant as a sum over the step. [MJ m-2 K-4 per step]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`R_{nl} = \sigma T^4 (0.34 - 0.14\sqrt{e_a}) f_{cd}`, positive upwards.
+        [MJ m-2 per step]
+    """
+    return (  # FAO-56 eq. 39; ASCE-EWRI (2005) eqs. 17, 44
+        stefan_boltzmann
+        * mean_fourth_power_temperature
+        * (0.34 - 0.14 * np.sqrt(vapour_pressure))
+        * cloudiness
+    )
+
+
 def net_longwave_daily(
     tmax: ArrayLike,
     tmin: ArrayLike,
@@ -380,7 +507,7 @@ def net_longwave_daily(
     shortwave : array_like
         Measured or computed incoming shortwave radiation :math:`R_s`. [MJ m-2 d-1]
     clear_sky_shortwave : array_like
-        Clear-sky shortwave radiation :math:`R_{so}`, positive. [MJ m-2 d-1]
+        Clear-sky shortwave radiation :math:`R_{so}`. [MJ m-2 d-1]
     stefan_boltzmann : float, default STEFAN_BOLTZMANN_DAILY
         Stefan–Boltzmann constant; the default is the CODATA value, pass
         :data:`~rasterbudget.physics.constants.FAO_STEFAN_BOLTZMANN_DAILY` (4.903e-9) to
@@ -389,33 +516,37 @@ def net_longwave_daily(
     Returns
     -------
     numpy.ndarray or float
-        Net outgoing longwave radiation :math:`R_{nl}`, positive upwards. [MJ m-2 d-1]
+        Net outgoing longwave radiation :math:`R_{nl}`, positive upwards; never negative.
+        [MJ m-2 d-1]
 
     Notes
     -----
-    FAO-56 eq. 39 [1]_:
+    FAO-56 eq. 39 [1]_ with the bounds of ASCE-EWRI (2005) [2]_:
 
     .. math::
 
         R_{nl} = \sigma \frac{T_{max}^4 + T_{min}^4}{2} (0.34 - 0.14\sqrt{e_a})
                  \left(1.35 \frac{R_s}{R_{so}} - 0.35\right)
 
-    with :math:`R_s/R_{so}` limited to at most 1.0 as FAO-56 requires. No lower limit is
-    applied (ASCE-EWRI 2005 also bounds it below at 0.3, from memory). FAO-56 converts
-    temperatures with 273.16; pass kelvin computed that way to match its examples exactly.
+    with :math:`R_s/R_{so}` bounded to [0.3, 1.0] (:func:`relative_shortwave`) and the
+    cloudiness function to [0.05, 1.0] (:func:`cloudiness_factor`). Where the day's
+    :math:`R_{so}` is below :data:`MIN_CLEAR_SKY_SHORTWAVE_DAILY` (polar winter) the ratio is
+    :data:`RELATIVE_SHORTWAVE_WITHOUT_SUN`. FAO-56 converts temperatures with 273.16; pass
+    kelvin computed that way to match its examples exactly.
 
     References
     ----------
     .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eq. 39.
+    .. [2] Allen et al. (eds.) (2005), The ASCE Standardized Reference Evapotranspiration
+       Equation, eqs. 17 and 18 (from memory).
     """
-    relative_shortwave = np.minimum(shortwave / clear_sky_shortwave, 1.0)  # FAO-56: Rs/Rso <= 1
-    return (  # FAO-56 eq. 39
-        stefan_boltzmann
-        * (tmax**4 + tmin**4)
-        / 2.0
-        * (0.34 - 0.14 * np.sqrt(vapour_pressure))
-        * (1.35 * relative_shortwave - 0.35)
-    )
+    ratio = relative_shortwave(shortwave, clear_sky_shortwave, MIN_CLEAR_SKY_SHORTWAVE_DAILY)
+    return net_longwave(
+        (np.asarray(tmax) ** 4 + np.asarray(tmin) ** 4) / 2.0,
+        vapour_pressure,
+        cloudiness_factor(ratio),
+        stefan_boltzmann,
+    )[()]
 
 
 def net_radiation_daily(

@@ -34,8 +34,11 @@ from rasterbudget.physics.constants import (
 from rasterbudget.physics.radiation import (
     clear_sky_shortwave_daily,
     clear_sky_transmissivity,
+    cloudiness_factor,
+    net_longwave,
     net_longwave_daily,
     net_radiation_daily,
+    relative_shortwave,
 )
 from rasterbudget.physics.solar import (
     cos_solar_zenith,
@@ -54,16 +57,22 @@ from rasterbudget.physics.turbulence import (
 )
 
 __all__ = [
+    "DEFAULT_LOW_SUN_CLOUDINESS",
     "FAO56_GRASS",
     "FAO_STEFAN_BOLTZMANN_HOURLY",
+    "LOW_SUN_ANGLE",
     "REFERENCE_SURFACES",
     "STEFAN_BOLTZMANN_HOURLY",
+    "carried_cloudiness",
+    "clear_sky_shortwave_hourly",
     "extraterrestrial_radiation_hourly",
     "net_radiation_hourly",
     "penman_monteith",
     "reference_et_daily",
     "reference_et_hourly",
+    "reference_et_hourly_series",
     "slope_vapour_pressure_curve",
+    "sun_angle_hourly",
 ]
 
 STEFAN_BOLTZMANN_HOURLY = STEFAN_BOLTZMANN * SECONDS_PER_HOUR / 1e6
@@ -459,6 +468,113 @@ def extraterrestrial_radiation_hourly(
     return np.maximum(ra, 0.0)
 
 
+LOW_SUN_ANGLE = 0.3
+"""Sun angle above the horizon at the middle of an hour below which ASCE-EWRI (2005) does not
+trust the hour's :math:`R_s/R_{so}` and carries the cloudiness function :math:`f_{cd}` of the
+last hour above it (eq. 45 notes, from memory). [rad]"""
+
+DEFAULT_LOW_SUN_CLOUDINESS = float(cloudiness_factor(0.8))
+""":math:`f_{cd}` used for a low-sun or night hour when no hour above :data:`LOW_SUN_ANGLE` is
+at hand: that of :math:`R_s/R_{so} = 0.8`, the value FAO-56's hourly Example 19 takes at night
+(the arid end of its 0.4–0.8 range, from memory), 0.73. [-]"""
+
+
+def sun_angle_hourly(
+    latitude: ArrayLike,
+    longitude: ArrayLike,
+    day_of_year: ArrayLike,
+    utc_hour_start: ArrayLike,
+    period_hours: ArrayLike = 1.0,
+) -> np.ndarray | float:
+    r"""Sun angle above the horizon at the middle of a period, as the hourly standard has it.
+
+    Parameters
+    ----------
+    latitude : array_like
+        Latitude, positive north. [rad]
+    longitude : array_like
+        Longitude, positive east. [degrees]
+    day_of_year : array_like
+        Day of the year. [-]
+    utc_hour_start : array_like
+        Start of the period in UTC. [h]
+    period_hours : array_like, default 1.0
+        Length of the period. [h]
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`\beta`, negative below the horizon. [rad]
+
+    Notes
+    -----
+    :math:`\sin\beta = \sin\varphi \sin\delta + \cos\varphi \cos\delta \cos\omega` at the
+    midpoint hour angle, with FAO-56's declination (eq. 24) and hour angle (eqs. 31–33), as
+    ASCE-EWRI (2005) computes it for the low-sun rule (eq. 62, from memory).
+    """
+    omega = hour_angle(utc_hour_start + 0.5 * period_hours, longitude, day_of_year)
+    sin_beta = cos_solar_zenith(latitude, solar_declination(day_of_year), omega)
+    return np.arcsin(np.clip(sin_beta, -1.0, 1.0))
+
+
+def clear_sky_shortwave_hourly(
+    latitude: ArrayLike,
+    longitude: ArrayLike,
+    day_of_year: ArrayLike,
+    utc_hour_start: ArrayLike,
+    elevation: ArrayLike,
+) -> np.ndarray | float:
+    r"""Clear-sky shortwave radiation over one hour.
+
+    Returns
+    -------
+    numpy.ndarray or float
+        :math:`R_{so} = (0.75 + 2 \times 10^{-5} z) R_a` with :math:`R_a` of the hour
+        (FAO-56 eqs. 28, 37; :func:`extraterrestrial_radiation_hourly`). [MJ m-2 h-1]
+    """
+    ra = extraterrestrial_radiation_hourly(latitude, day_of_year, utc_hour_start, longitude, 1.0)
+    return clear_sky_transmissivity(elevation) * ra  # FAO-56 eq. 37 for an hour
+
+
+def carried_cloudiness(
+    cloudiness: ArrayLike,
+    sun_angle: ArrayLike,
+    min_sun_angle: float = LOW_SUN_ANGLE,
+    initial: float = DEFAULT_LOW_SUN_CLOUDINESS,
+) -> np.ndarray:
+    r"""Cloudiness function of consecutive hours with the low-sun hours carried forward.
+
+    Parameters
+    ----------
+    cloudiness : array_like
+        :math:`f_{cd}` of each hour from its own :math:`R_s/R_{so}`, in time order (last
+        axis). [-]
+    sun_angle : array_like
+        Sun angle at the middle of each hour, :func:`sun_angle_hourly`. [rad]
+    min_sun_angle : float, default LOW_SUN_ANGLE
+        Hours whose sun is below this take the last :math:`f_{cd}` of an hour above it. [rad]
+    initial : float, default DEFAULT_LOW_SUN_CLOUDINESS
+        :math:`f_{cd}` of low-sun hours before the first hour above ``min_sun_angle``. [-]
+
+    Returns
+    -------
+    numpy.ndarray
+        :math:`f_{cd}` of each hour. [-]
+
+    Notes
+    -----
+    ASCE-EWRI (2005): where :math:`\beta < 0.3` rad (evening, night, early morning), the
+    hour's :math:`R_s/R_{so}` is unreliable and :math:`f_{cd}` is that of the last hour with
+    :math:`\beta > 0.3` rad (from memory).
+    """
+    fcd = np.asarray(cloudiness, dtype=float)
+    trusted = np.broadcast_to(np.asarray(sun_angle) >= min_sun_angle, fcd.shape)
+    index = np.where(trusted, np.arange(fcd.shape[-1]), -1)
+    last = np.maximum.accumulate(index, axis=-1)  # latest trusted hour so far, -1: none yet
+    carried = np.take_along_axis(fcd, np.maximum(last, 0), axis=-1)
+    return np.where(last >= 0, carried, initial)
+
+
 def net_radiation_hourly(
     temperature: ArrayLike,
     vapour_pressure: ArrayLike,
@@ -470,8 +586,8 @@ def net_radiation_hourly(
     elevation: ArrayLike,
     albedo: ArrayLike = 0.23,
     stefan_boltzmann_hourly: float = STEFAN_BOLTZMANN_HOURLY,
-    relative_shortwave_night: ArrayLike = 0.8,
-    min_sun_elevation: float = 0.0,
+    low_sun_cloudiness: ArrayLike = DEFAULT_LOW_SUN_CLOUDINESS,
+    min_sun_angle: float = LOW_SUN_ANGLE,
 ) -> np.ndarray | float:
     r"""Net radiation of the reference surface over one hour.
 
@@ -498,12 +614,11 @@ def net_radiation_hourly(
     stefan_boltzmann_hourly : float, default STEFAN_BOLTZMANN_HOURLY
         Stefan–Boltzmann constant as an hourly sum (CODATA); pass
         :data:`FAO_STEFAN_BOLTZMANN_HOURLY` to reproduce FAO-56. [MJ m-2 h-1 K-4]
-    relative_shortwave_night : array_like, default 0.8
-        :math:`R_s/R_{so}` used where the sun is too low, see
-        :func:`reference_et_hourly` (FAO-56's range 0.4–0.8, from memory). [-]
-    min_sun_elevation : float, default 0.0
-        Sun elevation at the middle of the hour at or below which
-        ``relative_shortwave_night`` is used, see :func:`reference_et_hourly`. [rad]
+    low_sun_cloudiness : array_like, default DEFAULT_LOW_SUN_CLOUDINESS
+        :math:`f_{cd}` for hours whose mid-hour sun is below ``min_sun_angle``: that of the
+        last hour above it (:func:`carried_cloudiness`, :func:`reference_et_hourly_series`). [-]
+    min_sun_angle : float, default LOW_SUN_ANGLE
+        Sun angle at the middle of the hour below which ``low_sun_cloudiness`` is used. [rad]
 
     Returns
     -------
@@ -512,39 +627,31 @@ def net_radiation_hourly(
 
     Notes
     -----
-    FAO-56 [1]_: :math:`R_a` of the hour from eq. 28 (:func:`extraterrestrial_radiation_hourly`),
-    :math:`R_{so} = (0.75 + 2 \times 10^{-5} z) R_a` (eq. 37), and eqs. 38–40 with the
-    hour's temperature and the hourly Stefan–Boltzmann constant:
+    FAO-56 [1]_ with the bounds and low-sun rule of ASCE-EWRI (2005) [2]_: :math:`R_{so}`
+    of the hour (:func:`clear_sky_shortwave_hourly`), :math:`R_s/R_{so}` bounded to
+    [0.3, 1.0] (:func:`~rasterbudget.physics.radiation.relative_shortwave`),
+    :math:`f_{cd} = 1.35 R_s/R_{so} - 0.35` bounded to [0.05, 1.0], or ``low_sun_cloudiness``
+    where :math:`\beta <` ``min_sun_angle`` (:func:`sun_angle_hourly`), and
 
     .. math::
 
-        R_n = (1 - \alpha) R_s - \sigma T_{hr}^4 (0.34 - 0.14 \sqrt{e_a})
-              \left(1.35 \frac{R_s}{R_{so}} - 0.35\right)
-
-    with :math:`R_s/R_{so} \leq 1`, replaced by ``relative_shortwave_night`` where the sun
-    is low or below the horizon.
+        R_n = (1 - \alpha) R_s - \sigma T_{hr}^4 (0.34 - 0.14 \sqrt{e_a}) f_{cd}
 
     References
     ----------
     .. [1] Allen et al. (1998), FAO Irrigation and Drainage Paper 56, eqs. 28, 37–40.
+    .. [2] Allen et al. (eds.) (2005), The ASCE Standardized Reference Evapotranspiration
+       Equation, eqs. 42–45 (from memory).
     """
-    ra = extraterrestrial_radiation_hourly(  # FAO-56 eq. 28
-        latitude, day_of_year, utc_hour_start, longitude, 1.0
+    rso = clear_sky_shortwave_hourly(latitude, longitude, day_of_year, utc_hour_start, elevation)
+    beta = sun_angle_hourly(latitude, longitude, day_of_year, utc_hour_start)
+    fcd = np.where(
+        beta < min_sun_angle,
+        low_sun_cloudiness,
+        cloudiness_factor(relative_shortwave(shortwave, rso)),
     )
-    rso = clear_sky_transmissivity(elevation) * ra  # FAO-56 eq. 37 for an hour
-    sin_elevation = cos_solar_zenith(
-        latitude,
-        solar_declination(day_of_year),
-        hour_angle(utc_hour_start + 0.5, longitude, day_of_year),
-    )
-    low_sun = (ra <= 0.0) | (sin_elevation <= np.sin(min_sun_elevation))
-    measured_ratio = shortwave / np.where(low_sun, 1.0, rso)
-    relative_shortwave = np.where(low_sun, relative_shortwave_night, measured_ratio)
-    rnl = net_longwave_daily(  # FAO-56 eq. 39 for an hour: sigma T_hr^4 (...)(...)
-        temperature, temperature, vapour_pressure, relative_shortwave, 1.0, stefan_boltzmann_hourly
-    )
-    rn = net_radiation_daily(albedo, shortwave, rnl)  # FAO-56 eqs. 38, 40 (same for an hour)
-    return rn
+    rnl = net_longwave(np.asarray(temperature) ** 4, vapour_pressure, fcd, stefan_boltzmann_hourly)
+    return net_radiation_daily(albedo, shortwave, rnl)[()]  # FAO-56 eqs. 38, 40 (same for an hour)
 
 
 def reference_et_hourly(
@@ -562,10 +669,10 @@ def reference_et_hourly(
     albedo: ArrayLike = 0.23,
     daytime: ArrayLike | None = None,
     stefan_boltzmann_hourly: float = STEFAN_BOLTZMANN_HOURLY,
-    relative_shortwave_night: ArrayLike = 0.8,
-    min_sun_elevation: float = 0.0,
+    low_sun_cloudiness: ArrayLike = DEFAULT_LOW_SUN_CLOUDINESS,
+    min_sun_angle: float = LOW_SUN_ANGLE,
 ) -> np.ndarray | float:
-    r"""Hourly reference evapotranspiration by the FAO-56 hourly procedure.
+    r"""Hourly standardized reference evapotranspiration (FAO-56 / ASCE-EWRI 2005).
 
     Parameters
     ----------
@@ -604,17 +711,13 @@ def reference_et_hourly(
         Stefan–Boltzmann constant as an hourly sum; the default is the CODATA value, pass
         :data:`FAO_STEFAN_BOLTZMANN_HOURLY` (2.043e-10) to reproduce FAO-56.
         [MJ m-2 h-1 K-4]
-    relative_shortwave_night : array_like, default 0.8
-        :math:`R_s/R_{so}` used for the longwave term where the sun is too low for a
-        measured ratio (see ``min_sun_elevation``). FAO-56 suggests taking it from an hour
-        2–3 h before sunset, or about 0.4–0.6 in humid and sub-humid and 0.7–0.8 in arid
-        and semi-arid climates (from memory); the default 0.8 is the arid end. [-]
-    min_sun_elevation : float, default 0.0
-        ``relative_shortwave_night`` replaces :math:`R_s/R_{so}` where the sun's elevation
-        at the middle of the hour is at or below this angle, or where :math:`R_a = 0`. The
-        default 0 uses it for hours whose midpoint is after sunset or before sunrise, when
-        less than half the hour is sunlit; FAO-56 and ASCE-EWRI (2005) advise the same for
-        sun elevations below about 17° (0.3 rad, from memory). [rad]
+    low_sun_cloudiness : array_like, default DEFAULT_LOW_SUN_CLOUDINESS
+        Cloudiness function :math:`f_{cd}` for hours whose mid-hour sun angle is below
+        ``min_sun_angle``: ASCE-EWRI (2005) takes that of the last hour above it, which
+        :func:`reference_et_hourly_series` does for a run of hours. The default, 0.73, is
+        :math:`R_s/R_{so} = 0.8`, FAO-56's assumption at night in its Example 19. [-]
+    min_sun_angle : float, default LOW_SUN_ANGLE
+        0.3 rad (about 17°), ASCE-EWRI (2005). [rad]
 
     Returns
     -------
@@ -630,16 +733,13 @@ def reference_et_hourly(
 
     Notes
     -----
-    The FAO-56 hourly procedure (chapter 3, Example 19) [1]_:
+    The FAO-56 hourly procedure (chapter 3, Example 19) [1]_ with the bounds of
+    ASCE-EWRI (2005) [2]_:
 
     - :math:`e_s = e^\circ(T_{hr})` (eq. 11) and :math:`e_a = e^\circ(T_{hr}) RH_{hr}/100`
       (eq. 54), :math:`\Delta` at :math:`T_{hr}` (eq. 13);
-    - :math:`R_a` of the hour (eq. 28, :func:`extraterrestrial_radiation_hourly`) and
-      :math:`R_{so} = (0.75 + 2 \times 10^{-5} z) R_a` (eq. 37);
-    - :math:`R_{nl} = \sigma T_{hr}^4 (0.34 - 0.14 \sqrt{e_a})
-      (1.35 R_s/R_{so} - 0.35)` (eq. 39 with the hourly :math:`\sigma`), with
-      :math:`R_s/R_{so} \leq 1`;
-    - :math:`R_n = (1 - \alpha) R_s - R_{nl}` (eqs. 38, 40);
+    - :math:`R_n` of the hour, :func:`net_radiation_hourly` (eqs. 28, 37–40 with
+      :math:`R_s/R_{so}` in [0.3, 1.0] and the low-sun rule);
     - :math:`G = 0.1 R_n` by day and :math:`0.5 R_n` by night for grass (eqs. 45, 46),
       or the ratios of the chosen surface (ASCE-EWRI 2005 Table 1);
     - :func:`penman_monteith` with the hourly :math:`C_n` and the day or night
@@ -664,7 +764,7 @@ def reference_et_hourly(
             temperature, relative_humidity
         )
     es = saturation_vapour_pressure(temperature)  # FAO-56 eq. 11 at T_hr
-    rn = net_radiation_hourly(  # FAO-56 eqs. 28, 37-40
+    rn = net_radiation_hourly(  # FAO-56 eqs. 28, 37-40; ASCE-EWRI (2005) bounds
         temperature,
         vapour_pressure,
         shortwave,
@@ -675,8 +775,8 @@ def reference_et_hourly(
         elevation,
         albedo,
         stefan_boltzmann_hourly,
-        relative_shortwave_night,
-        min_sun_elevation,
+        low_sun_cloudiness,
+        min_sun_angle,
     )
     is_day = np.greater(rn, 0.0) if daytime is None else np.asarray(daytime, dtype=bool)
     ground = np.where(is_day, constants["g_day"], constants["g_night"]) * rn  # eqs. 45, 46
@@ -693,3 +793,77 @@ def reference_et_hourly(
         constants["cn"],
         cd,
     )[()]
+
+
+def reference_et_hourly_series(
+    temperature: ArrayLike,
+    wind_speed_2m: ArrayLike,
+    shortwave: ArrayLike,
+    latitude: float,
+    longitude: float,
+    day_of_year: ArrayLike,
+    utc_hour_start: ArrayLike,
+    elevation: float,
+    vapour_pressure: ArrayLike | None = None,
+    relative_humidity: ArrayLike | None = None,
+    reference: str | Mapping = "short",
+    stefan_boltzmann_hourly: float = STEFAN_BOLTZMANN_HOURLY,
+    initial_cloudiness: float = DEFAULT_LOW_SUN_CLOUDINESS,
+) -> np.ndarray:
+    r"""Hourly standardized reference ET of a station's consecutive hours.
+
+    Parameters
+    ----------
+    temperature, wind_speed_2m, shortwave, vapour_pressure, relative_humidity : array_like
+        One value per hour, in time order, as for :func:`reference_et_hourly`.
+        [K], [m s-1], [MJ m-2 h-1], [kPa], [%]
+    latitude : float
+        [rad]
+    longitude : float
+        [degrees east]
+    day_of_year, utc_hour_start : array_like
+        Day of the year and UTC start of each hour. [-], [h]
+    elevation : float
+        [m]
+    reference : str or mapping, default "short"
+        See :func:`reference_et_hourly`.
+    stefan_boltzmann_hourly : float, default STEFAN_BOLTZMANN_HOURLY
+        [MJ m-2 h-1 K-4]
+    initial_cloudiness : float, default DEFAULT_LOW_SUN_CLOUDINESS
+        :math:`f_{cd}` of the low-sun hours before the series' first hour with the sun above
+        :data:`LOW_SUN_ANGLE` (start the series at noon of the day before to avoid it). [-]
+
+    Returns
+    -------
+    numpy.ndarray
+        Reference ET of each hour. [mm h-1]
+
+    Notes
+    -----
+    As :func:`reference_et_hourly`, with ASCE-EWRI's (2005) rule for the hours whose mid-hour
+    sun angle is below 0.3 rad: their cloudiness function is that of the last hour above it
+    (:func:`carried_cloudiness`).
+    """
+    shortwave = np.asarray(shortwave, dtype=float)
+    rso = clear_sky_shortwave_hourly(latitude, longitude, day_of_year, utc_hour_start, elevation)
+    beta = sun_angle_hourly(latitude, longitude, day_of_year, utc_hour_start)
+    own = cloudiness_factor(relative_shortwave(shortwave, rso))
+    own = np.broadcast_to(own, shortwave.shape)
+    fcd = carried_cloudiness(own, beta, initial=initial_cloudiness)
+    return np.asarray(
+        reference_et_hourly(
+            temperature,
+            wind_speed_2m,
+            shortwave,
+            latitude,
+            longitude,
+            day_of_year,
+            utc_hour_start,
+            elevation,
+            vapour_pressure=vapour_pressure,
+            relative_humidity=relative_humidity,
+            reference=reference,
+            stefan_boltzmann_hourly=stefan_boltzmann_hourly,
+            low_sun_cloudiness=fcd,
+        )
+    )

@@ -308,7 +308,8 @@ def example_19(name):
         utc_start,
         EX19_ELEVATION,
         stefan_boltzmann_hourly=FAO_STEFAN_BOLTZMANN_HOURLY,
-        relative_shortwave_night=0.8,  # FAO-56 Example 19 takes 0.8 at night (from memory)
+        # FAO-56 Example 19 takes Rs/Rso = 0.8 at night (from memory)
+        low_sun_cloudiness=radiation.cloudiness_factor(0.8),
     )
     eto = reference_et.reference_et_hourly(
         temperature,
@@ -322,7 +323,7 @@ def example_19(name):
         relative_humidity=rh,
         reference=FAO56_GRASS,
         stefan_boltzmann_hourly=FAO_STEFAN_BOLTZMANN_HOURLY,
-        relative_shortwave_night=0.8,
+        low_sun_cloudiness=radiation.cloudiness_factor(0.8),
     )
     return {"utc_start": utc_start, "Rn": rn, "ETo": eto}
 
@@ -818,30 +819,55 @@ def test_hourly_night_uses_night_constants():
     assert forced_day != eto
 
 
-def test_hourly_relative_shortwave_night_sets_night_longwave():
-    # with Rs = 0 at night, Rn = -Rnl and Rnl grows with the assumed Rs/Rso (FAO-56 eq. 39)
+def test_hourly_low_sun_cloudiness_sets_night_longwave():
+    # with Rs = 0 at night, Rn = -Rnl = -sigma T^4 (0.34 - 0.14 sqrt(ea)) fcd (FAO-56 eq. 39)
     temperature = kelvin(28.0)
     args = (temperature, 3.4, 0.0, EX19_LATITUDE, EX19_LONGITUDE, EX19_DAY, 3.0, 8.0)
     rn = [
-        reference_et.net_radiation_hourly(*args, relative_shortwave_night=ratio)
-        for ratio in (0.4, 0.6, 0.8)
+        reference_et.net_radiation_hourly(*args, low_sun_cloudiness=fcd) for fcd in (0.2, 0.5, 0.73)
     ]
     assert rn[0] > rn[1] > rn[2]
-    expected = -radiation.net_longwave_daily(
-        temperature, temperature, 3.4, 0.8, 1.0, reference_et.STEFAN_BOLTZMANN_HOURLY
+    expected = -(
+        reference_et.STEFAN_BOLTZMANN_HOURLY * temperature**4 * (0.34 - 0.14 * np.sqrt(3.4)) * 0.73
     )
     np.testing.assert_allclose(rn[2], expected, rtol=1e-14)
+    # the default is FAO-56 Example 19's night-time Rs/Rso = 0.8, fcd = 1.35 * 0.8 - 0.35
+    assert reference_et.DEFAULT_LOW_SUN_CLOUDINESS == pytest.approx(0.73, abs=1e-12)
+    np.testing.assert_allclose(reference_et.net_radiation_hourly(*args), rn[2], rtol=1e-14)
 
 
-def test_hourly_low_sun_threshold():
-    # at 45° N on 21 June the 04:00-05:00 UTC hour at 0° E has its midpoint sun below 17°:
-    # min_sun_elevation = 0.3 rad (FAO-56 / ASCE-EWRI advice, from memory) replaces Rs/Rso
-    args = (kelvin(15.0), 1.2, 0.05, np.radians(45.0), 0.0, 172, 4.0, 0.0)
-    measured = reference_et.net_radiation_hourly(*args)
-    replaced = reference_et.net_radiation_hourly(*args, min_sun_elevation=0.3)
-    assert measured != replaced
-    zero_ratio = reference_et.net_radiation_hourly(*args, relative_shortwave_night=0.0)
-    assert zero_ratio == measured  # midpoint sun above the horizon: the measured ratio is used
+def test_hourly_low_sun_threshold_is_asce_0_3_rad():
+    # 45° N, 21 June, 0° E: the 04:00-05:00 UTC hour has its midpoint sun at about 11°, below
+    # ASCE-EWRI's (2005) 0.3 rad, so its own Rs/Rso is not used; 10:00-11:00 is above it
+    low = (kelvin(15.0), 1.2, 0.05, np.radians(45.0), 0.0, 172, 4.0, 0.0)
+    beta = reference_et.sun_angle_hourly(np.radians(45.0), 0.0, 172, 4.0)
+    assert 0.0 < beta < reference_et.LOW_SUN_ANGLE == 0.3
+    a = reference_et.net_radiation_hourly(*low, low_sun_cloudiness=0.4)
+    b = reference_et.net_radiation_hourly(*low, low_sun_cloudiness=0.9)
+    assert a != b  # the carried cloudiness decides
+    same = reference_et.net_radiation_hourly(*low, low_sun_cloudiness=0.4, min_sun_angle=0.0)
+    other = reference_et.net_radiation_hourly(*low, low_sun_cloudiness=0.9, min_sun_angle=0.0)
+    assert same == other  # with the rule off, the hour's own ratio decides
+
+
+def test_hourly_relative_shortwave_bounded_below_at_0_3():
+    # ASCE-EWRI (2005): Rs/Rso in [0.3, 1.0] hourly too; a dark noon hour (Rs/Rso = 0.1) has the
+    # longwave loss of Rs/Rso = 0.3, fcd = 1.35 * 0.3 - 0.35 = 0.055
+    lat, doy, start, z = np.radians(45.0), 172, 11.5, 0.0
+    rso = reference_et.clear_sky_shortwave_hourly(lat, 0.0, doy, start, z)
+    t, ea = kelvin(20.0), 1.5
+    rn_dark = reference_et.net_radiation_hourly(t, ea, 0.1 * rso, lat, 0.0, doy, start, z)
+    rnl = reference_et.STEFAN_BOLTZMANN_HOURLY * t**4 * (0.34 - 0.14 * np.sqrt(ea)) * 0.055
+    np.testing.assert_allclose(rn_dark, 0.77 * 0.1 * rso - rnl, rtol=1e-12)
+    assert rnl > 0.0
+
+
+def test_carried_cloudiness_takes_the_last_hour_above_the_threshold():
+    # ASCE-EWRI (2005): below 0.3 rad the fcd of the last hour above it; before any, the initial
+    fcd = np.array([0.9, 0.9, 0.6, 0.7, 0.2, 0.1, 0.8, 0.3])
+    beta = np.array([-0.5, 0.1, 0.4, 0.8, 0.2, -0.3, 0.35, 0.29])
+    out = reference_et.carried_cloudiness(fcd, beta, initial=0.5)
+    np.testing.assert_array_equal(out, [0.5, 0.5, 0.6, 0.7, 0.7, 0.7, 0.8, 0.8])
 
 
 def test_reference_et_hourly_broadcasts_over_a_grid():

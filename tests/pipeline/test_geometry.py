@@ -45,14 +45,14 @@ def test_sun_direction_on_the_lattice_equals_the_per_pixel_formula():
     # pixel_geometry interpolates the sun vector between lattice nodes; the error must be tiny
     import dataclasses
 
-    from rasterbudget.physics.solar import hour_angle, sun_direction
+    from rasterbudget.physics.solar import local_hour_angle, sun_direction
     from rasterbudget.pipeline import pixel_geometry
 
     grid = Grid(CRS.from_epsg(32613), from_origin(480000.0, 4430000.0, 30.0, 30.0), 500, 400)
-    constants = dataclasses.make_dataclass("C", ["utc_hour", "day_of_year", "declination"])(
-        17.9, 165, 0.406
+    constants = dataclasses.make_dataclass("C", ["greenwich_hour_angle", "declination"])(
+        1.52, 0.406
     )
     lon, lat, sun = pixel_geometry(grid, slice(37, 301), slice(5, 490), constants)
-    expected = sun_direction(lat, 0.406, hour_angle(17.9, lon, 165))
+    expected = sun_direction(lat, 0.406, local_hour_angle(1.52, lon))
     for got, want in zip(sun, expected, strict=True):
         np.testing.assert_allclose(got, want, atol=1e-9)

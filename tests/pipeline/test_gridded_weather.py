@@ -9,6 +9,10 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
+from rasterbudget.physics.turbulence import (
+    saturation_vapour_pressure,
+    vapour_pressure_from_relative_humidity,
+)
 from rasterbudget.surface import LAPSE_RATE
 
 from ..conftest import TINY, demo_recipe_dict, write_toml
@@ -46,11 +50,15 @@ def test_weather_grids_holding_the_station_values_reproduce_the_station_run(tmp_
     elevation = rasterio.open(TINY / "elevation.tif").read(1).astype(np.float64)
     # the station's air temperature carried to each pixel as the run itself does
     air = 26.5 - LAPSE_RATE * (elevation - 1560.0)
+    # the station's vapour pressure held over the scene, as the run does with its air carried
+    # down the lapse rate: the humidity that gives it at each pixel's air temperature
+    ea = vapour_pressure_from_relative_humidity(26.5 + 273.15, 28.0)
+    rh = 100.0 * ea / saturation_vapour_pressure(air + 273.15)
     folder = _run(
         tmp_path,
         {
             "air_temperature_c": _raster(tmp_path, "ta", air),
-            "relative_humidity_pct": _raster(tmp_path, "rh", np.full(elevation.shape, 28.0)),
+            "relative_humidity_pct": _raster(tmp_path, "rh", rh),
             "wind_speed_m_s": _raster(tmp_path, "wind", np.full(elevation.shape, 3.4)),
         },
     )

@@ -54,6 +54,8 @@ def demo_constants(**overrides) -> surface.SceneConstants:
         day_of_year=DAY_OF_YEAR,
         utc_hour=UTC_HOUR,
         declination=float(solar.solar_declination(DAY_OF_YEAR)),
+        # FAO-56's hour angle at longitude 0: this known-answer case keeps FAO-56's sun
+        greenwich_hour_angle=float(solar.hour_angle(UTC_HOUR, 0.0, DAY_OF_YEAR)),
         inverse_distance=float(solar.inverse_relative_distance(DAY_OF_YEAR)),
         air_temperature=ta,
         station_elevation=STATION_ELEVATION,

@@ -120,7 +120,7 @@ def test_higher_albedo_never_raises_net_radiation_physics(
     albedo, increase, ts, emissivity, latitude_deg, longitude
 ):
     c = CONSTANTS
-    omega = solar.hour_angle(c.utc_hour, longitude, c.day_of_year)
+    omega = solar.local_hour_angle(c.greenwich_hour_angle, longitude)
     cos_z = solar.cos_solar_zenith(np.radians(latitude_deg), c.declination, omega)
     tau = radiation.clear_sky_transmissivity(c.station_elevation)  # FAO-56 eq. 37
     sw_in = radiation.shortwave_in(cos_z, c.inverse_distance, tau)
