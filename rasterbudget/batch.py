@@ -15,13 +15,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from . import __version__
+from .catalog.classes import ClassTable
 from .errors import RasterBudgetError
-from .landcover import ClassTable
-from .outputs import write_text_atomic
-from .paths import is_remote
-from .pipeline import RunSettings, run_scene
+from .io.paths import is_remote
+from .io.writers import write_text_atomic
 from .recipe import Recipe, Scene, resolve_raster_path
-from .summaries import rows_to_csv
+from .scene.run import RunSettings, run_scene
+from .scene.summaries import rows_to_csv
 
 BATCH_TABLE = "batch.csv"
 

@@ -132,7 +132,7 @@ def make_synthetic_scene(folder: Path, size: int, tiny_dir: Path) -> Path:
 
 
 def _load(recipe_path: Path):
-    from .landcover import load_class_table
+    from .catalog.classes import load_class_table
     from .recipe import load_recipe
 
     return load_recipe(recipe_path), load_class_table(None)
@@ -149,8 +149,8 @@ def floor_phase(recipe_path: Path, out_dir: Path, chunk: int, passes: int = 1) -
     import rasterio
     from rasterio.windows import Window
 
-    from .grid import GDAL_OPTIONS, Grid
-    from .outputs import FLUX_OUTPUTS, QA_OUTPUT, AtomicRaster, block_size_for
+    from .io.grid import GDAL_OPTIONS, Grid
+    from .io.writers import FLUX_OUTPUTS, QA_OUTPUT, AtomicRaster, block_size_for
 
     inputs = {role: recipe_path.parent / f"{role}.tif" for role in _SOURCES.values()}
     with rasterio.open(inputs["albedo"]) as src:
@@ -225,12 +225,12 @@ def pipeline_phase(
     timed)."""
     import dask
 
-    from .pipeline import RunSettings, run_scene
+    from .scene.run import RunSettings, run_scene
 
     recipe, table = _load(recipe_path)
     settings = RunSettings(out_dir=out_dir, chunk_size=chunk, tile_size=256, stac=False)
     if workers:
-        from .cluster import dask_cluster
+        from .io.cluster import dask_cluster
 
         scheduler = dask_cluster(None, workers)
     else:

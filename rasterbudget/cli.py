@@ -23,7 +23,7 @@ def _fail(err: Exception, debug: bool) -> None:
 
 def _recipe_and_classes(path: Path):
     """The validated recipe and the class table it names."""
-    from .landcover import load_class_table
+    from .catalog.classes import load_class_table
     from .recipe import load_recipe, resolve_path
 
     parsed = load_recipe(path)
@@ -122,7 +122,7 @@ def run(
             raise RasterBudgetError("give --scheduler or --workers, not both.")
         cluster = contextlib.nullcontext()
         if scheduler is not None or workers is not None:
-            from .cluster import dask_cluster
+            from .io.cluster import dask_cluster
 
             cluster = dask_cluster(scheduler, workers)
         with cluster:
@@ -142,8 +142,8 @@ def _run(
     force: bool,
 ) -> None:
     """The run command's work (inside the chosen dask scheduler)."""
-    from .pipeline import RunSettings
     from .recipe import resolve_path
+    from .scene.run import RunSettings
 
     parsed, table = _recipe_and_classes(recipe)
     settings = RunSettings(
@@ -190,7 +190,7 @@ def _run(
     failed = [o for o in outcomes if o.status == "failed"]
     zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
     if parsed.season:
-        from .season import run_season
+        from .season.totals import run_season
 
         for season in parsed.season:
             done = run_season(parsed, season, settings)
@@ -202,7 +202,7 @@ def _run(
                     f"{settings.out_dir / season.id}"
                 )
     if parsed.zones is not None:
-        from .zones import run_zones
+        from .season.zones import run_zones
 
         zone_targets += [(s.id, "et_season") for s in parsed.season]
         for path in run_zones(parsed, settings, zone_targets):
@@ -303,7 +303,7 @@ def compare(
           --baseline y2022.tif --baseline y2023.tif --out anomaly --zones fields.geojson
     """
     try:
-        from .compare import run_compare
+        from .season.compare import run_compare
 
         if current.suffix.lower() == ".toml":
             if previous is not None or baseline or zones_path is not None:
@@ -311,8 +311,8 @@ def compare(
                     f"{current} is a comparison recipe: give --previous, --baseline and --zones "
                     "in its [[comparison]] and [compare.zones] tables, not on the command line."
                 )
-            from .compare import run_compare_recipe
             from .recipe import load_compare_recipe
+            from .season.compare import run_compare_recipe
 
             results = run_compare_recipe(load_compare_recipe(current), out_dir)
         else:
@@ -354,7 +354,7 @@ def inspect(recipe: Path, chunk_size: int | None, debug: bool) -> None:
       rasterbudget inspect workflows/demo.toml
     """
     try:
-        from .inspection import inspect_recipe
+        from .scene.inspection import inspect_recipe
 
         parsed, table = _recipe_and_classes(recipe)
         for line in inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size):

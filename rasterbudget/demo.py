@@ -41,7 +41,7 @@ from rasterio.transform import Affine
 from rasterio.warp import transform as _transform_coords
 from scipy import ndimage
 
-from rasterbudget.errors import ClassTableError
+from .errors import ClassTableError
 
 __all__ = [
     "DEMO_DATES",

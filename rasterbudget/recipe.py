@@ -647,6 +647,6 @@ def resolve_raster_path(recipe: Recipe, value: str) -> Path | str:
     URLs and GDAL virtual paths (``https://``, ``s3://``, ``/vsicurl/`` ...) are handed to GDAL as
     written; turning them into a ``Path`` would fold their ``//`` and break them.
     """
-    from .paths import is_remote
+    from .io.paths import is_remote
 
     return value if is_remote(value) else resolve_path(recipe, value)

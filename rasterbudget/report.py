@@ -12,8 +12,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .outputs import write_text_atomic
-from .pipeline import CAUTION
+from .io.writers import write_text_atomic
+from .scene.run import CAUTION
 
 
 def _png(fig) -> str:
@@ -269,7 +269,7 @@ def _comparison_section(folder: Path, summary: dict) -> str:
     from matplotlib.colors import BoundaryNorm, ListedColormap
     from matplotlib.patches import Patch
 
-    from .compare import CATEGORIES
+    from .season.compare import CATEGORIES
 
     parts = [f"<h2>Comparison {html.escape(summary['comparison'])}</h2>"]
     described = [f"current: {html.escape(summary['current'])}"]

@@ -11,7 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .landcover import ClassTable
+from .catalog.classes import ClassTable
+from .catalog.qa import QA, QA_NO_FLUXES, QA_NOT_ANCHOR
 from .physics import ground, radiation, turbulence
 from .physics.constants import SOLAR_CONSTANT, ZERO_CELSIUS
 from .physics.solar import (
@@ -22,7 +23,6 @@ from .physics.solar import (
     local_hour_angle,
     sun_direction,
 )
-from .qa import QA, QA_NO_FLUXES, QA_NOT_ANCHOR
 
 #: Standard-atmosphere lapse rate used to carry the station air temperature to each pixel's
 #: elevation [K m-1] (ICAO standard atmosphere, 6.5 K km-1).

@@ -11,8 +11,7 @@ from click.testing import CliRunner
 
 from rasterbudget.bench import _mirror_index, make_synthetic_scene
 from rasterbudget.cli import main
-
-from .conftest import TINY
+from tests.conftest import TINY
 
 
 def test_mirror_tiling_has_no_seams():

@@ -14,15 +14,15 @@ from click.testing import CliRunner
 from rasterio.crs import CRS
 from rasterio.warp import transform as warp_transform
 
-from rasterbudget import outputs, pipeline
+from rasterbudget.catalog.classes import load_class_table
 from rasterbudget.cli import main
 from rasterbudget.errors import InputRasterError, OutputError
-from rasterbudget.landcover import load_class_table
-from rasterbudget.outputs import FLUX_OUTPUTS, REFERENCE_OUTPUTS
-from rasterbudget.paths import is_remote
+from rasterbudget.io import writers as outputs
+from rasterbudget.io.paths import is_remote
+from rasterbudget.io.writers import FLUX_OUTPUTS, REFERENCE_OUTPUTS
 from rasterbudget.recipe import parse_recipe, resolve_raster_path
-
-from .conftest import demo_recipe_dict, write_toml
+from rasterbudget.scene import run as pipeline
+from tests.conftest import demo_recipe_dict, write_toml
 
 SCENES = ("kessendry_20260614", "kessendry_20260823")
 SCENE = SCENES[0]
@@ -246,8 +246,8 @@ def test_stac_can_be_switched_off(tmp_path):
 def test_outline_of_a_geographic_grid_is_its_box():
     from rasterio.transform import from_origin
 
-    from rasterbudget.cloud import footprint_lonlat
-    from rasterbudget.grid import Grid
+    from rasterbudget.io.cloud import footprint_lonlat
+    from rasterbudget.io.grid import Grid
 
     grid = Grid(CRS.from_epsg(4326), from_origin(10.0, 50.0, 0.01, 0.01), 300, 200)
     bbox, geometry = footprint_lonlat(grid)
@@ -259,8 +259,8 @@ def test_outline_of_a_geographic_grid_is_its_box():
 def test_epsg_less_crs_gives_wkt2():
     from rasterio.transform import from_origin
 
-    from rasterbudget.cloud import projection_fields
-    from rasterbudget.grid import Grid
+    from rasterbudget.io.cloud import projection_fields
+    from rasterbudget.io.grid import Grid
 
     crs = CRS.from_proj4("+proj=aea +lat_1=30 +lat_2=45 +lat_0=20 +lon_0=-100 +datum=WGS84")
     fields = projection_fields(Grid(crs, from_origin(0, 0, 30, 30), 10, 10))
@@ -479,7 +479,7 @@ def test_an_unopenable_remote_input_gets_a_clear_error(tmp_path):
         assert words in line, line
     assert "does not exist" not in line  # no local-file check for a /vsi path
     with pytest.raises(InputRasterError):
-        from rasterbudget.grid import target_grid
+        from rasterbudget.io.grid import target_grid
 
         target_grid(location)
 

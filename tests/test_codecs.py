@@ -8,8 +8,8 @@ import rasterio
 from rasterio.crs import CRS
 from rasterio.transform import from_origin
 
-from rasterbudget.grid import Grid
-from rasterbudget.outputs import COMPRESSION, AtomicRaster
+from rasterbudget.io.grid import Grid
+from rasterbudget.io.writers import COMPRESSION, AtomicRaster
 
 
 @pytest.mark.parametrize("compression", sorted(COMPRESSION))

@@ -11,7 +11,7 @@ from click.testing import CliRunner
 from rasterio.transform import from_origin
 
 from rasterbudget.cli import main
-from rasterbudget.compare import drought_category, standardized_anomaly
+from rasterbudget.season.compare import drought_category, standardized_anomaly
 
 
 @pytest.mark.parametrize(
@@ -144,7 +144,7 @@ def test_compare_recipe_with_a_missing_raster_writes_nothing(tmp_path):
 def test_comparison_outputs_do_not_depend_on_chunking(tmp_path):
     import json
 
-    from rasterbudget.compare import run_compare
+    from rasterbudget.season.compare import run_compare
 
     rng = np.random.default_rng(5)
     years = [_write(tmp_path / f"y{k}.tif", rng.normal(600.0, 50.0, (150, 170))) for k in range(3)]

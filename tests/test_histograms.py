@@ -6,7 +6,7 @@ import numpy as np
 from hypothesis import given
 from hypothesis import strategies as st
 
-from rasterbudget.histograms import range_histogram
+from rasterbudget.methods.histograms import range_histogram
 
 
 @given(st.lists(st.integers(0, 500), min_size=1, max_size=200), st.integers(1, 199))

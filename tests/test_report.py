@@ -10,8 +10,7 @@ import pytest
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from .conftest import ROOT, render_in_chromium
+from tests.conftest import ROOT, render_in_chromium
 
 
 class _Collector(HTMLParser):

@@ -11,15 +11,14 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-from rasterbudget.season import (
+from rasterbudget.season.totals import (
     SEASON_EMPTY,
     SEASON_FILLED,
     season_days,
     season_total_block,
     season_weights,
 )
-
-from .conftest import ROOT
+from tests.conftest import ROOT
 
 DAYS = season_days(dt.date(2026, 6, 1), dt.date(2026, 6, 30))
 SCENES = [dt.date(2026, 6, 6), dt.date(2026, 6, 16), dt.date(2026, 6, 26)]
@@ -100,7 +99,7 @@ def test_demo_season_end_to_end(tmp_path):
 
 def test_missing_weather_days_are_listed(tmp_path):
     from rasterbudget.errors import RecipeError
-    from rasterbudget.season import daily_reference_et
+    from rasterbudget.season.totals import daily_reference_et
 
     table = tmp_path / "weather.csv"
     table.write_text("date,reference_et_mm\n2026-06-01,6.0\n2026-06-03,6.5\n")

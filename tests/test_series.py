@@ -19,8 +19,7 @@ from rasterbudget.demo import (
     SERIES_YEARS,
     series_recipe_text,
 )
-
-from .conftest import render_in_chromium
+from tests.conftest import render_in_chromium
 
 ROOT = Path(__file__).resolve().parents[1]
 SERIES_RECIPE = ROOT / "workflows" / "demo_series.toml"

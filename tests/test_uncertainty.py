@@ -7,10 +7,9 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
+from rasterbudget.methods.ensemble import sample_members
 from rasterbudget.recipe import UncertaintySettings
-from rasterbudget.uncertainty import sample_members
-
-from .conftest import demo_recipe_dict, write_toml
+from tests.conftest import demo_recipe_dict, write_toml
 
 
 def test_members_are_a_latin_hypercube_over_the_ranges():

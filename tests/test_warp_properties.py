@@ -10,7 +10,7 @@ from rasterio.crs import CRS
 from rasterio.transform import from_origin
 from rasterio.warp import Resampling, reproject
 
-from rasterbudget.grid import Grid, InputSource, read_window
+from rasterbudget.io.grid import Grid, InputSource, read_window
 
 
 @settings(max_examples=25, deadline=None)

@@ -11,7 +11,7 @@ import rasterio
 from pyproj import Geod
 from rasterio.transform import from_origin
 
-from rasterbudget.zones import CUBIC_METRES_PER_ACRE_FOOT, load_zones, zone_rows, zone_totals
+from rasterbudget.season.zones import CUBIC_METRES_PER_ACRE_FOOT, load_zones, zone_rows, zone_totals
 
 
 def _raster(path, data, crs, transform):
@@ -103,8 +103,7 @@ def test_demo_season_zone_table(tmp_path):
     from click.testing import CliRunner
 
     from rasterbudget.cli import main
-
-    from .conftest import ROOT
+    from tests.conftest import ROOT
 
     out = tmp_path / "out"
     result = CliRunner().invoke(

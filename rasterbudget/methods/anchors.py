@@ -21,9 +21,9 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import AnchorError
-from ..histograms import RangeHistogram, merge_optional, range_histogram
 from ..physics import turbulence
 from ..physics.constants import SPECIFIC_HEAT_AIR
+from .histograms import RangeHistogram, merge_optional, range_histogram
 
 #: Surface-temperature histogram: lower edge, upper edge and bin width [K].
 TS_LOW, TS_HIGH, TS_STEP = 200.0, 350.0, 0.01

@@ -21,7 +21,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from ..errors import AnchorError
-from ..histograms import RangeHistogram, merge_optional, range_histogram
+from .histograms import RangeHistogram, merge_optional, range_histogram
 
 #: 2-D histogram layout: albedo bins [-] and surface-temperature bins [K].
 ALBEDO_STEP = 0.005

@@ -8,7 +8,7 @@ Sources
 import numpy as np
 from numpy.typing import ArrayLike
 
-from rasterbudget.physics.constants import ZERO_CELSIUS
+from .constants import ZERO_CELSIUS
 
 __all__ = ["ground_heat_flux", "ground_heat_ratio_ndvi"]
 

@@ -19,7 +19,7 @@ Sources
 import numpy as np
 from numpy.typing import ArrayLike
 
-from rasterbudget.physics.constants import (
+from .constants import (
     SOLAR_CONSTANT,
     STEFAN_BOLTZMANN,
     STEFAN_BOLTZMANN_DAILY,

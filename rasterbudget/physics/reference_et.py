@@ -23,15 +23,15 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike
 
-from rasterbudget.errors import InputValueError
-from rasterbudget.physics.constants import (
+from ..errors import InputValueError
+from .constants import (
     FAO_SOLAR_CONSTANT,
     SECONDS_PER_HOUR,
     STEFAN_BOLTZMANN,
     STEFAN_BOLTZMANN_DAILY,
     ZERO_CELSIUS,
 )
-from rasterbudget.physics.radiation import (
+from .radiation import (
     clear_sky_shortwave_daily,
     clear_sky_transmissivity,
     cloudiness_factor,
@@ -40,7 +40,7 @@ from rasterbudget.physics.radiation import (
     net_radiation_daily,
     relative_shortwave,
 )
-from rasterbudget.physics.solar import (
+from .solar import (
     cos_solar_zenith,
     extraterrestrial_radiation_daily,
     hour_angle,
@@ -48,7 +48,7 @@ from rasterbudget.physics.solar import (
     solar_declination,
     sunset_hour_angle,
 )
-from rasterbudget.physics.turbulence import (
+from .turbulence import (
     air_pressure,
     psychrometric_constant,
     saturation_vapour_pressure,

@@ -29,7 +29,7 @@ from typing import NamedTuple
 import numpy as np
 from numpy.typing import ArrayLike
 
-from rasterbudget.physics.constants import FAO_SOLAR_CONSTANT
+from .constants import FAO_SOLAR_CONSTANT
 
 __all__ = [
     "SolarEphemeris",

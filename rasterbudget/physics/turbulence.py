@@ -19,7 +19,7 @@ Sources
 import numpy as np
 from numpy.typing import ArrayLike
 
-from rasterbudget.physics.constants import (
+from .constants import (
     GRAVITY,
     SPECIFIC_GAS_CONSTANT_AIR,
     SPECIFIC_HEAT_AIR,

@@ -7,13 +7,12 @@ import pytest
 import rasterio
 from click.testing import CliRunner
 
-from rasterbudget import pipeline
+from rasterbudget.catalog.classes import load_class_table
 from rasterbudget.cli import main
 from rasterbudget.errors import OutputError
-from rasterbudget.landcover import load_class_table
 from rasterbudget.recipe import parse_recipe
-
-from ..conftest import demo_recipe_dict, write_toml
+from rasterbudget.scene import run as pipeline
+from tests.conftest import demo_recipe_dict, write_toml
 
 SCENE = "kessendry_20260614"
 

@@ -9,8 +9,7 @@ import shutil
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from ..conftest import demo_recipe_dict, write_toml
+from tests.conftest import demo_recipe_dict, write_toml
 
 
 def _batch(out):

@@ -10,8 +10,7 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from ..conftest import demo_recipe_dict, write_toml
+from tests.conftest import demo_recipe_dict, write_toml
 
 
 def _copy(src_path, dst_path, **changes):

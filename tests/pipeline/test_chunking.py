@@ -9,9 +9,8 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-from rasterbudget.outputs import FLUX_OUTPUTS
-
-from ..conftest import DEMO_RECIPE
+from rasterbudget.io.writers import FLUX_OUTPUTS
+from tests.conftest import DEMO_RECIPE
 
 
 def _run(out, chunk, tile):

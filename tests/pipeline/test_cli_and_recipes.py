@@ -16,8 +16,7 @@ from rasterio.warp import Resampling, calculate_default_transform, reproject
 from rasterbudget.cli import main
 from rasterbudget.errors import RecipeError
 from rasterbudget.recipe import load_compare_recipe, load_recipe
-
-from ..conftest import ROOT, TINY, demo_recipe_dict, write_toml
+from tests.conftest import ROOT, TINY, demo_recipe_dict, write_toml
 
 
 @pytest.mark.parametrize("recipe", sorted((ROOT / "workflows").glob("*.toml")))

@@ -9,8 +9,7 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from ..conftest import DEMO_RECIPE
+from tests.conftest import DEMO_RECIPE
 
 distributed = pytest.importorskip("distributed")
 

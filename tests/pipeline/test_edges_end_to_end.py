@@ -10,8 +10,7 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from ..conftest import ROOT
+from tests.conftest import ROOT
 
 
 @pytest.fixture(scope="module")
@@ -54,7 +53,7 @@ def test_edges_scene_closes_and_records_its_edges(edges_run, scene):
 
 
 def test_edges_need_no_wind_and_no_humidity(tmp_path):
-    from ..conftest import demo_recipe_dict, write_toml
+    from tests.conftest import demo_recipe_dict, write_toml
 
     data = demo_recipe_dict()
     data["scene"] = data["scene"][:1]

@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 import rasterio
 
-from rasterbudget.outputs import FLUX_OUTPUTS
-from rasterbudget.qa import QA
+from rasterbudget.catalog.qa import QA
+from rasterbudget.io.writers import FLUX_OUTPUTS
 
 SCENES = ("kessendry_20260614", "kessendry_20260823")
 EXPECTED_FILES = [f"{n}.tif" for n in FLUX_OUTPUTS] + [

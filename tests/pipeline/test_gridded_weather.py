@@ -14,8 +14,7 @@ from rasterbudget.physics.turbulence import (
     vapour_pressure_from_relative_humidity,
 )
 from rasterbudget.surface import LAPSE_RATE
-
-from ..conftest import TINY, demo_recipe_dict, write_toml
+from tests.conftest import TINY, demo_recipe_dict, write_toml
 
 SCENE = "kessendry_20260614"
 

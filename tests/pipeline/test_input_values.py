@@ -7,10 +7,9 @@ import pytest
 import rasterio
 from click.testing import CliRunner
 
+from rasterbudget.catalog.qa import QA
 from rasterbudget.cli import main
-from rasterbudget.qa import QA
-
-from ..conftest import demo_recipe_dict, write_toml
+from tests.conftest import demo_recipe_dict, write_toml
 
 SCENE = "kessendry_20260614"
 

@@ -5,8 +5,7 @@ from __future__ import annotations
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from ..conftest import ROOT, demo_recipe_dict, write_toml
+from tests.conftest import ROOT, demo_recipe_dict, write_toml
 
 
 def test_inspect_describes_every_input_and_the_anchor_candidates():

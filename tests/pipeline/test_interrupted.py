@@ -12,7 +12,7 @@ import numpy as np
 import rasterio
 from rasterio.windows import Window
 
-from ..conftest import TINY, demo_recipe_dict, write_toml
+from tests.conftest import TINY, demo_recipe_dict, write_toml
 
 SCENE = "kessendry_20260614"
 

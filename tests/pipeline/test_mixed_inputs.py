@@ -6,10 +6,9 @@ import numpy as np
 import rasterio
 from click.testing import CliRunner
 
+from rasterbudget.catalog.qa import QA
 from rasterbudget.cli import main
-from rasterbudget.qa import QA
-
-from ..conftest import ROOT
+from tests.conftest import ROOT
 
 RECIPE = ROOT / "workflows" / "demo_mixed_inputs.toml"
 

@@ -7,11 +7,11 @@ from collections import Counter
 import pytest
 import rasterio
 
-from rasterbudget import grid, pipeline
-from rasterbudget.landcover import load_class_table
+from rasterbudget.catalog.classes import load_class_table
+from rasterbudget.io import grid
 from rasterbudget.recipe import parse_recipe
-
-from ..conftest import demo_recipe_dict
+from rasterbudget.scene import run as pipeline
+from tests.conftest import demo_recipe_dict
 
 
 @pytest.mark.parametrize(

@@ -10,8 +10,7 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from ..conftest import ROOT
+from tests.conftest import ROOT
 
 
 @pytest.fixture(scope="module")
@@ -59,7 +58,7 @@ def test_cold_anchor_transpires_at_the_configured_multiple_of_reference_et(refer
 
 
 def test_reference_scaling_without_daily_wind_is_refused(tmp_path):
-    from ..conftest import demo_recipe_dict, write_toml
+    from tests.conftest import demo_recipe_dict, write_toml
 
     data = demo_recipe_dict()
     data["scene"] = data["scene"][:1]

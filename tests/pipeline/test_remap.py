@@ -7,8 +7,7 @@ import rasterio
 from click.testing import CliRunner
 
 from rasterbudget.cli import main
-
-from ..conftest import demo_recipe_dict, write_toml
+from tests.conftest import demo_recipe_dict, write_toml
 
 USER_CODES = {1: 110, 2: 120, 3: 300, 4: 400, 5: 510, 6: 800, 7: 900, 8: 610, 9: 700}
 

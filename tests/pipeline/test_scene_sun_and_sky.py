@@ -11,12 +11,11 @@ import pandas as pd
 import pytest
 from pvlib.solarposition import get_solarposition
 
-from rasterbudget.grid import target_grid
+from rasterbudget.io.grid import target_grid
 from rasterbudget.physics import radiation
-from rasterbudget.pipeline import scene_centre_lonlat, scene_constants
 from rasterbudget.recipe import load_recipe
-
-from ..conftest import TINY, demo_recipe_dict, write_toml
+from rasterbudget.scene.run import scene_centre_lonlat, scene_constants
+from tests.conftest import TINY, demo_recipe_dict, write_toml
 
 SCENES = ("kessendry_20260614", "kessendry_20260823")
 

@@ -2,7 +2,7 @@
 
 - ``demo_constants``: scene constants like the demo recipe's first scene (``workflows/demo.toml``:
   40° N, 14 June, 17:52 UTC, station at 1560 m, Ta 26.5 °C, RH 28 %), built with the same formulas
-  as ``rasterbudget.pipeline.scene_constants`` but without a recipe or a raster grid.
+  as ``rasterbudget.scene.constants.scene_constants`` but without a recipe or a raster grid.
 - ``builtin_lookups``: the built-in class table as 256-entry lookups.
 - ``forward_surface_temperature``: an independent forward model of the anchor method. Given a
   prescribed sensible heat flux H it finds the near-surface temperature difference dT, the
@@ -21,7 +21,7 @@ from functools import cache
 import numpy as np
 
 from rasterbudget import surface
-from rasterbudget.landcover import load_class_table
+from rasterbudget.catalog.classes import load_class_table
 from rasterbudget.methods import anchors
 from rasterbudget.physics import radiation, solar, turbulence
 from rasterbudget.physics.constants import GRAVITY, SPECIFIC_HEAT_AIR, VON_KARMAN

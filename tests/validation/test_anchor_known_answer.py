@@ -46,8 +46,7 @@ from rasterbudget import surface
 from rasterbudget.methods import anchors
 from rasterbudget.physics import partition, turbulence
 from rasterbudget.physics.constants import SPECIFIC_HEAT_AIR
-
-from . import _synthetic as syn
+from tests.validation import _synthetic as syn
 
 WINDS = (1.5, 3.4, 8.0)  # station wind at 2 m [m s-1]: light, the demo's, strong
 

@@ -45,8 +45,7 @@ from hypothesis.extra.numpy import arrays
 from rasterbudget import surface
 from rasterbudget.methods import anchors
 from rasterbudget.physics import partition, radiation, solar
-
-from . import _synthetic as syn
+from tests.validation import _synthetic as syn
 
 CONSTANTS = syn.demo_constants()
 CODES = syn.builtin_table().codes

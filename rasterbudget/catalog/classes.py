@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import ClassTableError
+from ..errors import ClassTableError
 
 #: Properties every class must define, with the Python type each must have.
 REQUIRED_PROPERTIES: dict[str, type] = {

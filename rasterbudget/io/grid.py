@@ -22,7 +22,7 @@ from rasterio.vrt import WarpedVRT
 from rasterio.warp import transform_bounds
 from rasterio.windows import Window
 
-from .errors import InputRasterError
+from ..errors import InputRasterError
 from .paths import is_remote
 
 #: GDAL settings for every read and write (block cache bounded; see DEVELOPERS.md).

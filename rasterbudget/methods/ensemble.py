@@ -14,7 +14,7 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 
-from .recipe import UncertaintySettings
+from ..recipe import UncertaintySettings
 
 #: Percentiles of the member distribution written per pixel.
 ENSEMBLE_PERCENTILES = (10.0, 90.0)

@@ -15,8 +15,9 @@ import numpy as np
 import rasterio
 from rasterio.transform import Affine
 
-from .errors import AnchorError
-from .grid import (
+from ..catalog.classes import ClassTable
+from ..errors import AnchorError
+from ..io.grid import (
     GDAL_OPTIONS,
     WEATHER_ROLES,
     Grid,
@@ -27,8 +28,9 @@ from .grid import (
     read_window,
     target_grid,
 )
-from .landcover import ClassTable
-from .pipeline import (
+from ..recipe import Recipe, Scene, resolve_path, resolve_raster_path
+from ..surface import ClassLookups, land_cover_codes, surface_block
+from .run import (
     OPTIONAL_INPUTS,
     REQUIRED_INPUTS,
     BlockContext,
@@ -40,8 +42,6 @@ from .pipeline import (
     scene_constants,
     with_weather_at_centre,
 )
-from .recipe import Recipe, Scene, resolve_path, resolve_raster_path
-from .surface import ClassLookups, land_cover_codes, surface_block
 
 SAMPLE_SIDE = 1024
 
@@ -116,7 +116,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
             )
         stats = {role: _input_stats(role, values) for role, values in data.items()}
         if specs["land_cover"].remap is not None:
-            from .landcover import load_remap
+            from ..catalog.classes import load_remap
 
             mapping = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
             data["land_cover"], stats["land_cover_unmapped"] = remap_codes(

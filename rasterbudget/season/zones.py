@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import RecipeError
+from ..errors import RecipeError
 
 # rasterio's in-memory rasterize target warns before its transform is set (the masks are right).
 # A filter for that module only: catch_warnings() is not thread-safe under dask's threads.
@@ -123,7 +123,7 @@ def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
     import rasterio
     from rasterio import features, windows
 
-    from .grid import Grid
+    from ..io.grid import Grid
 
     with rasterio.open(raster) as src:
         grid = Grid(src.crs, src.transform, src.width, src.height)
@@ -172,8 +172,8 @@ def zone_rows(ids: list[str], totals: np.ndarray, variable: str) -> list[dict]:
 def write_zone_tables(
     out_dir: Path, rows: list[dict], properties: list[dict], geometries: list
 ) -> None:
-    from .outputs import write_text_atomic
-    from .summaries import rows_to_csv
+    from ..io.writers import write_text_atomic
+    from ..scene.summaries import rows_to_csv
 
     write_text_atomic(out_dir / "zones.csv", rows_to_csv(rows))
     features = []
@@ -191,8 +191,8 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
     """Zone tables for each (folder, variable) target that exists under ``settings.out_dir``."""
     import rasterio
 
-    from .pipeline import effective_chunk_size
-    from .recipe import resolve_path
+    from ..recipe import resolve_path
+    from ..scene.run import effective_chunk_size
 
     spec = recipe.zones
     written = []

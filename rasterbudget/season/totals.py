@@ -20,9 +20,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import RecipeError
-from .physics import reference_et
-from .physics.constants import ZERO_CELSIUS
+from ..errors import RecipeError
+from ..physics import reference_et
+from ..physics.constants import ZERO_CELSIUS
 
 #: season_qa bits
 SEASON_FILLED = 1  # at least one scene was missing at this pixel and was filled in time
@@ -143,7 +143,7 @@ def season_days(start: dt.date, end: dt.date) -> list[dt.date]:
 
 
 def write_season_manifest(path: Path, content: dict) -> None:
-    from .outputs import write_text_atomic
+    from ..io.writers import write_text_atomic
 
     write_text_atomic(path, json.dumps(content, indent=2, default=str))
 
@@ -168,9 +168,9 @@ def run_season(recipe, season, settings) -> dict:
     import dask.array as da
     import rasterio
 
-    from .grid import GDAL_OPTIONS, Grid
-    from .outputs import AtomicRaster, block_size_for, remove_stale_partials
-    from .pipeline import effective_chunk_size, scene_centre_lonlat
+    from ..io.grid import GDAL_OPTIONS, Grid
+    from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials
+    from ..scene.run import effective_chunk_size, scene_centre_lonlat
 
     scenes = {s.id: s for s in recipe.scene}
     unknown = [i for i in season.scenes if i not in scenes]
@@ -316,6 +316,6 @@ def run_season(recipe, season, settings) -> dict:
 
 
 def _resolve(recipe, value: str) -> Path:
-    from .recipe import resolve_path
+    from ..recipe import resolve_path
 
     return resolve_path(recipe, value)

@@ -11,7 +11,7 @@ import contextlib
 import os
 from collections.abc import Iterator
 
-from .errors import RasterBudgetError
+from ..errors import RasterBudgetError
 
 
 def distributed_client():

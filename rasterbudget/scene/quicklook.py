@@ -6,7 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .outputs import FLUX_OUTPUTS, PARTIAL_SUFFIX
+from ..io.writers import FLUX_OUTPUTS, PARTIAL_SUFFIX
 
 #: Panels: (output stem, colour map, fixed range or None for the 2-98 % range of the data).
 PANELS = (

@@ -6,7 +6,7 @@ and nothing is computed twice. The store is built under ``outputs.zarr.partial``
 complete. The STAC Item describes the committed files and is written atomically before
 ``manifest.json`` (which stays the last file of a scene, the mark of a complete one).
 
-Cloud Optimized GeoTIFFs (``[run] cog``) are made by :class:`rasterbudget.outputs.AtomicRaster`.
+Cloud Optimized GeoTIFFs (``[run] cog``) are made by :class:`rasterbudget.io.writers.AtomicRaster`.
 """
 
 from __future__ import annotations
@@ -19,10 +19,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import RecipeError
+from ..catalog.qa import QA, QA_DESCRIPTIONS
+from ..errors import RecipeError
 from .grid import Grid
-from .outputs import PARTIAL_SUFFIX, write_text_atomic
-from .qa import QA, QA_DESCRIPTIONS
+from .writers import PARTIAL_SUFFIX, write_text_atomic
 
 ZARR_NAME = "outputs.zarr"
 ZARR_FORMAT = 2  # see AtomicZarr

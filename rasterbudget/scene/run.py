@@ -25,9 +25,11 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__
-from .errors import InputValueError, OutputError, RasterBudgetError, SunBelowHorizonError
-from .grid import (
+from .. import __version__
+from ..catalog.classes import ClassTable
+from ..catalog.qa import QA, QA_DESCRIPTIONS
+from ..errors import InputValueError, OutputError, RasterBudgetError, SunBelowHorizonError
+from ..io.grid import (
     GDAL_OPTIONS,
     WEATHER_ROLES,
     Grid,
@@ -38,10 +40,8 @@ from .grid import (
     read_window,
     target_grid,
 )
-from .landcover import ClassTable
-from .methods import anchors as anchor_method
-from .methods import edges as edge_method
-from .outputs import (
+from ..io.paths import is_remote, local_size
+from ..io.writers import (
     COMPONENT_OUTPUTS,
     ENSEMBLE_OUTPUTS,
     FLUX_OUTPUTS,
@@ -52,10 +52,12 @@ from .outputs import (
     remove_stale_partials,
     write_text_atomic,
 )
-from .paths import is_remote, local_size
-from .physics import partition, radiation, turbulence
-from .physics.constants import SECONDS_PER_HOUR
-from .physics.solar import (
+from ..methods import anchors as anchor_method
+from ..methods import edges as edge_method
+from ..methods.ensemble import Member, ensemble_percentiles, sample_members
+from ..physics import partition, radiation, turbulence
+from ..physics.constants import SECONDS_PER_HOUR
+from ..physics.solar import (
     daylight_hours,
     extraterrestrial_radiation_daily,
     local_hour_angle,
@@ -64,8 +66,15 @@ from .physics.solar import (
     sun_direction,
     surface_normal,
 )
-from .qa import QA, QA_DESCRIPTIONS
-from .recipe import Recipe, Scene, resolve_path, resolve_raster_path
+from ..recipe import Recipe, Scene, resolve_path, resolve_raster_path
+from ..surface import (
+    ClassLookups,
+    SceneConstants,
+    kelvin,
+    land_cover_codes,
+    perturbed_air,
+    surface_block,
+)
 from .summaries import (
     HISTOGRAM_RANGES,
     class_histograms,
@@ -76,15 +85,6 @@ from .summaries import (
     tile_statistics,
     tiles_geojson,
 )
-from .surface import (
-    ClassLookups,
-    SceneConstants,
-    kelvin,
-    land_cover_codes,
-    perturbed_air,
-    surface_block,
-)
-from .uncertainty import Member, ensemble_percentiles, sample_members
 
 CAUTION = (
     "These are model estimates with real uncertainty: field-scale errors of tens of percent are "
@@ -314,7 +314,7 @@ def station_reference_et(
     ``reference_et_hourly`` / ``reference_et_daily`` as None where the recipe lacks the weather
     they need, and refuses a recipe whose choices need them.
     """
-    from .physics import reference_et
+    from ..physics import reference_et
 
     ow, dw, ref = scene.overpass, scene.daily, scene.reference_et
     hourly = daily = None
@@ -1100,14 +1100,14 @@ def run_scene(
     import dask.array as da
     import rasterio
 
-    from .progress import TaskProgress
+    from ..io.progress import TaskProgress
 
     started = time.perf_counter()
     timings: dict[str, float] = {}
     chunk = effective_chunk_size(settings.chunk_size)
     block = block_size_for(chunk)
     if settings.zarr:
-        from .cloud import require_zarr
+        from ..io.cloud import require_zarr
 
         require_zarr()  # before any pass, not after minutes of work
 
@@ -1123,7 +1123,7 @@ def run_scene(
         paths[key] = resolve_raster_path(recipe, value)
     remap = {}
     if specs["land_cover"].remap is not None:
-        from .landcover import load_remap
+        from ..catalog.classes import load_remap
 
         remap = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
     with rasterio.Env(**GDAL_OPTIONS):
@@ -1283,7 +1283,7 @@ def run_scene(
         writers.append(qa_writer)
         targets.append((variables.index(QA_OUTPUT), "uint16", qa_writer))
         if settings.zarr:
-            from .cloud import ZARR_NAME, AtomicZarr
+            from ..io.cloud import ZARR_NAME, AtomicZarr
 
             zarr_vars = {n: ("float32", *descriptions[n]) for n in written}
             zarr_vars[QA_OUTPUT] = ("uint16", "1", "QA flags, bits in the README")
@@ -1527,7 +1527,7 @@ def _write_stac(
     cog: bool,
 ) -> Path:
     """The scene's STAC Item: the committed outputs, and the manifest written right after it."""
-    from .cloud import stac_item, write_stac_item
+    from ..io.cloud import stac_item, write_stac_item
 
     files = [p.name for p in outputs.values() if p.suffix != ".tif"] + ["manifest.json"]
     item = stac_item(

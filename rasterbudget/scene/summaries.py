@@ -13,7 +13,7 @@ import json
 
 import numpy as np
 
-from .histograms import RangeHistogram, range_histogram
+from ..methods.histograms import RangeHistogram, range_histogram
 
 TILE_STATS = ("mean", "std", "min", "p10", "p50", "p90", "max")
 

@@ -16,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputRasterError
+from ..errors import InputRasterError
 
 #: Category code -> name (codes of the drought_category raster; 0 = no value).
 CATEGORIES = {
@@ -179,10 +179,16 @@ def run_compare(
     import rasterio
     from rasterio import features, windows
 
-    from .grid import GDAL_OPTIONS, Grid
-    from .outputs import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
-    from .pipeline import effective_chunk_size
-    from .summaries import rows_to_csv, tile_layout, tile_rows, tile_statistics, tiles_geojson
+    from ..io.grid import GDAL_OPTIONS, Grid
+    from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
+    from ..scene.run import effective_chunk_size
+    from ..scene.summaries import (
+        rows_to_csv,
+        tile_layout,
+        tile_rows,
+        tile_statistics,
+        tiles_geojson,
+    )
 
     paths = [current, *([previous] if previous else []), *baseline]
     for p in paths:
@@ -373,8 +379,8 @@ def run_compare(
 
 def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[Path, dict]]:
     """Run each ``[[comparison]]`` of a comparison recipe into ``OUT/<id>/``; write the report."""
-    from .recipe import resolve_path
-    from .report import write_compare_report
+    from ..recipe import resolve_path
+    from ..report import write_compare_report
 
     settings = recipe.compare
     out = out_override if out_override is not None else resolve_path(recipe, settings.out)

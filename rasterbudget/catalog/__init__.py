@@ -1,0 +1,1 @@
+"""What the package knows by name: QA bits, land-cover classes, inputs and output variables."""

@@ -1,0 +1,1 @@
+"""Reading inputs on the target grid, writing outputs atomically, and the blockwise engine."""

@@ -1,0 +1,1 @@
+"""One scene end to end: scene scalars, the per-block state, the two passes, the manifest."""
