@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from .io.writers import write_text_atomic
-from .scene.run import CAUTION
+from .scene.manifest import CAUTION
 
 
 def _png(fig) -> str:

@@ -21,6 +21,7 @@ from rasterbudget.io import writers as outputs
 from rasterbudget.io.paths import is_remote
 from rasterbudget.io.writers import FLUX_OUTPUTS, REFERENCE_OUTPUTS
 from rasterbudget.recipe import parse_recipe, resolve_raster_path
+from rasterbudget.scene import blocks
 from rasterbudget.scene import run as pipeline
 from tests.conftest import demo_recipe_dict, write_toml
 
@@ -358,7 +359,7 @@ def test_zarr_rerun_replaces_the_store_and_stale_temporaries_go(tmp_path):
 
 
 def test_failed_pass_two_leaves_no_zarr_behind(tmp_path, monkeypatch):
-    original = pipeline.pass2_block
+    original = blocks.pass2_block
     calls = {"n": 0}
 
     def failing(*args):
@@ -367,7 +368,7 @@ def test_failed_pass_two_leaves_no_zarr_behind(tmp_path, monkeypatch):
             raise OSError("disk full (simulated)")
         return original(*args)
 
-    monkeypatch.setattr(pipeline, "pass2_block", failing)
+    monkeypatch.setattr(blocks, "pass2_block", failing)
     recipe = parse_recipe(demo_recipe_dict())
     settings = pipeline.RunSettings(
         out_dir=tmp_path / "out", chunk_size=64, tile_size=64, zarr=True
@@ -485,14 +486,14 @@ def test_an_unopenable_remote_input_gets_a_clear_error(tmp_path):
 
 
 def test_zarr_is_filled_by_the_same_compute_without_recomputing_blocks(tmp_path, monkeypatch):
-    original = pipeline.pass2_block
+    original = blocks.pass2_block
     calls = []
 
     def counting(ctx, params, loc):
         calls.append(loc)
         return original(ctx, params, loc)
 
-    monkeypatch.setattr(pipeline, "pass2_block", counting)
+    monkeypatch.setattr(blocks, "pass2_block", counting)
     recipe = parse_recipe(demo_recipe_dict())
     settings = pipeline.RunSettings(
         out_dir=tmp_path / "out", chunk_size=128, tile_size=100, zarr=True, quicklook=False

@@ -30,18 +30,10 @@ from ..io.grid import (
 )
 from ..recipe import Recipe, Scene, resolve_path, resolve_raster_path
 from ..surface import ClassLookups, land_cover_codes, surface_block
-from .run import (
-    OPTIONAL_INPUTS,
-    REQUIRED_INPUTS,
-    BlockContext,
-    _input_stats,
-    check_input_values,
-    mask_pixels,
-    pixel_lonlat,
-    remap_codes,
-    scene_constants,
-    with_weather_at_centre,
-)
+from .blocks import BlockContext, check_input_values, input_stats, mask_pixels, remap_codes
+from .constants import scene_constants, with_weather_at_centre
+from .geometry import pixel_lonlat
+from .run import OPTIONAL_INPUTS, REQUIRED_INPUTS
 
 SAMPLE_SIDE = 1024
 
@@ -114,7 +106,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
                 f"valid {values.size / data[role].size:.1%} (sampled 1 in {factor}x{factor})"
                 + ("" if info["same_grid"] else "; warped to the target grid")
             )
-        stats = {role: _input_stats(role, values) for role, values in data.items()}
+        stats = {role: input_stats(role, values) for role, values in data.items()}
         if specs["land_cover"].remap is not None:
             from ..catalog.classes import load_remap
 

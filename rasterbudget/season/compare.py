@@ -179,9 +179,9 @@ def run_compare(
     import rasterio
     from rasterio import features, windows
 
+    from ..io.engine import effective_chunk_size
     from ..io.grid import GDAL_OPTIONS, Grid
     from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
-    from ..scene.run import effective_chunk_size
     from ..scene.summaries import (
         rows_to_csv,
         tile_layout,

@@ -168,9 +168,10 @@ def run_season(recipe, season, settings) -> dict:
     import dask.array as da
     import rasterio
 
+    from ..io.engine import effective_chunk_size
     from ..io.grid import GDAL_OPTIONS, Grid
     from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials
-    from ..scene.run import effective_chunk_size, scene_centre_lonlat
+    from ..scene.constants import scene_centre_lonlat
 
     scenes = {s.id: s for s in recipe.scene}
     unknown = [i for i in season.scenes if i not in scenes]

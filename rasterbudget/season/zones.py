@@ -191,8 +191,8 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
     """Zone tables for each (folder, variable) target that exists under ``settings.out_dir``."""
     import rasterio
 
+    from ..io.engine import effective_chunk_size
     from ..recipe import resolve_path
-    from ..scene.run import effective_chunk_size
 
     spec = recipe.zones
     written = []

@@ -32,7 +32,7 @@ def _anchor(role, ts, available, z0m, rho=1.0):
     )
 
 
-def _state(ts, role="cold"):
+def block_state(ts, role="cold"):
     n = ts.size
     return {
         "datum_surface_temperature": ts,
@@ -50,7 +50,7 @@ def _state(ts, role="cold"):
 def test_histogram_percentile_matches_numpy_to_the_bin_width():
     rng = np.random.default_rng(7)
     ts = rng.normal(300.0, 4.0, 20000)
-    hist = anchors.anchor_histograms_block(_state(ts), np.arange(ts.size, dtype=float))
+    hist = anchors.anchor_histograms_block(block_state(ts), np.arange(ts.size, dtype=float))
     assert hist[1] is None  # no hot candidates
     dense = anchors.dense_histogram(hist[0])
     anchor = anchors.select_anchor(dense, "cold", 5.0, 1.0, 20, width=1000)
@@ -68,9 +68,9 @@ def test_histograms_of_split_blocks_combine_to_the_whole():
     rng = np.random.default_rng(3)
     ts = rng.normal(310.0, 6.0, 5000)
     flat = np.arange(ts.size, dtype=float)
-    whole = anchors.anchor_histograms_block(_state(ts, "hot"), flat)
+    whole = anchors.anchor_histograms_block(block_state(ts, "hot"), flat)
     parts = [
-        anchors.anchor_histograms_block(_state(ts[s], "hot"), flat[s])
+        anchors.anchor_histograms_block(block_state(ts[s], "hot"), flat[s])
         for s in (slice(0, 1234), slice(1234, 4000), slice(4000, None))
     ]
     combined = parts[0]
@@ -83,7 +83,7 @@ def test_histograms_of_split_blocks_combine_to_the_whole():
 
 
 def test_too_few_candidates_is_a_clear_error():
-    hist = anchors.anchor_histograms_block(_state(np.array([300.0, 301.0])), np.arange(2.0))
+    hist = anchors.anchor_histograms_block(block_state(np.array([300.0, 301.0])), np.arange(2.0))
     with pytest.raises(anchors.AnchorError, match="only 2 cold-anchor candidate"):
         anchors.select_anchor(anchors.dense_histogram(hist[0]), "cold", 5.0, 1.0, 20, width=10)
 

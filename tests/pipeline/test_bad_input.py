@@ -11,6 +11,7 @@ from rasterbudget.catalog.classes import load_class_table
 from rasterbudget.cli import main
 from rasterbudget.errors import OutputError
 from rasterbudget.recipe import parse_recipe
+from rasterbudget.scene import blocks
 from rasterbudget.scene import run as pipeline
 from tests.conftest import demo_recipe_dict, write_toml
 
@@ -153,7 +154,7 @@ def test_class_table_missing_property(tmp_path):
 
 def test_crash_while_writing_leaves_no_final_outputs(tmp_path, monkeypatch):
     """A failure in the middle of pass 2 must leave neither outputs nor temporary files."""
-    original = pipeline.pass2_block
+    original = blocks.pass2_block
     calls = {"n": 0}
 
     def failing(*args):
@@ -162,7 +163,7 @@ def test_crash_while_writing_leaves_no_final_outputs(tmp_path, monkeypatch):
             raise OSError("disk full (simulated)")
         return original(*args)
 
-    monkeypatch.setattr(pipeline, "pass2_block", failing)
+    monkeypatch.setattr(blocks, "pass2_block", failing)
     data = demo_recipe_dict()
     recipe = parse_recipe(data)
     settings = pipeline.RunSettings(out_dir=tmp_path / "out", chunk_size=64, tile_size=64)

@@ -9,7 +9,7 @@ from rasterio.crs import CRS
 from rasterio.transform import from_origin
 
 from rasterbudget.io.grid import Grid
-from rasterbudget.scene.run import pixel_lonlat
+from rasterbudget.scene.geometry import pixel_lonlat
 
 
 @pytest.mark.parametrize(
@@ -46,7 +46,7 @@ def test_sun_direction_on_the_lattice_equals_the_per_pixel_formula():
     import dataclasses
 
     from rasterbudget.physics.solar import local_hour_angle, sun_direction
-    from rasterbudget.scene.run import pixel_geometry
+    from rasterbudget.scene.geometry import pixel_geometry
 
     grid = Grid(CRS.from_epsg(32613), from_origin(480000.0, 4430000.0, 30.0, 30.0), 500, 400)
     constants = dataclasses.make_dataclass("C", ["greenwich_hour_angle", "declination"])(

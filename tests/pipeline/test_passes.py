@@ -10,6 +10,7 @@ import rasterio
 from rasterbudget.catalog.classes import load_class_table
 from rasterbudget.io import grid
 from rasterbudget.recipe import parse_recipe
+from rasterbudget.scene import blocks
 from rasterbudget.scene import run as pipeline
 from tests.conftest import demo_recipe_dict
 
@@ -30,7 +31,7 @@ def test_each_input_is_read_twice_and_each_block_computed_once(tmp_path, monkeyp
         return original_read(source, rows, cols, halo)
 
     block_calls: Counter = Counter()
-    original_pass1, original_pass2 = pipeline.pass1_block, pipeline.pass2_block
+    original_pass1, original_pass2 = blocks.pass1_block, blocks.pass2_block
 
     def pass1(ctx, location):
         block_calls["pass1", str(location)] += 1
@@ -40,9 +41,9 @@ def test_each_input_is_read_twice_and_each_block_computed_once(tmp_path, monkeyp
         block_calls["pass2", str(location)] += 1
         return original_pass2(ctx, params, location)
 
-    monkeypatch.setattr(pipeline, "read_window", counting_read)
-    monkeypatch.setattr(pipeline, "pass1_block", pass1)
-    monkeypatch.setattr(pipeline, "pass2_block", pass2)
+    monkeypatch.setattr(blocks, "read_window", counting_read)
+    monkeypatch.setattr(blocks, "pass1_block", pass1)
+    monkeypatch.setattr(blocks, "pass2_block", pass2)
     recipe = parse_recipe(demo_recipe_dict())
     settings = pipeline.RunSettings(
         out_dir=tmp_path, chunk_size=96, tile_size=tile_size, quicklook=True
@@ -51,8 +52,8 @@ def test_each_input_is_read_twice_and_each_block_computed_once(tmp_path, monkeyp
 
     with rasterio.open(result.outputs["net_radiation"]) as src:
         n_pixels = src.width * src.height
-    blocks = 4 * 5  # 300 x 400 pixels in chunks of 96
-    assert len(block_calls) == 2 * blocks
+    block_count = 4 * 5  # 300 x 400 pixels in chunks of 96
+    assert len(block_calls) == 2 * block_count
     assert set(block_calls.values()) == {1}, "a block was computed twice"
     for role in ("albedo", "surface_temperature", "land_cover", "ndvi", "elevation"):
         assert pixels_read[role] == 2 * n_pixels, role

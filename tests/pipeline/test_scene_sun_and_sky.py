@@ -14,7 +14,7 @@ from pvlib.solarposition import get_solarposition
 from rasterbudget.io.grid import target_grid
 from rasterbudget.physics import radiation
 from rasterbudget.recipe import load_recipe
-from rasterbudget.scene.run import scene_centre_lonlat, scene_constants
+from rasterbudget.scene.constants import scene_centre_lonlat, scene_constants
 from tests.conftest import TINY, demo_recipe_dict, write_toml
 
 SCENES = ("kessendry_20260614", "kessendry_20260823")

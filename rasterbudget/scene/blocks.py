@@ -1,0 +1,476 @@
+"""The per-block work of a scene: read the windows, the surface state, pass 1 and pass 2.
+
+Each function takes a small picklable :class:`BlockContext` and a block location, reads its own
+windows and returns small arrays, so the passes never hold more than a block per thread.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..catalog.qa import QA
+from ..errors import InputValueError
+from ..io.grid import (
+    WEATHER_ROLES,
+    Grid,
+    InputSource,
+    read_window,
+)
+from ..io.writers import (
+    QA_OUTPUT,
+)
+from ..methods import anchors as anchor_method
+from ..methods import edges as edge_method
+from ..methods.ensemble import Member, ensemble_percentiles
+from ..physics import partition, turbulence
+from ..physics.constants import SECONDS_PER_HOUR
+from ..physics.solar import (
+    surface_normal,
+)
+from ..surface import (
+    ClassLookups,
+    SceneConstants,
+    land_cover_codes,
+    perturbed_air,
+    surface_block,
+)
+from .geometry import pixel_geometry
+from .summaries import (
+    HISTOGRAM_RANGES,
+    class_histograms,
+    tile_statistics,
+)
+
+
+@dataclass(frozen=True)
+class BlockContext:
+    """Everything a block function needs besides its location (small, picklable)."""
+
+    grid: Grid
+    constants: SceneConstants
+    lookups: ClassLookups
+    sources: tuple[InputSource, ...]
+    method: str = "anchors"
+    remap: tuple[tuple[int, int], ...] = ()  # user land-cover code -> class code
+    metric_pixel_size: tuple[float, float] = (1.0, 1.0)  # for slopes [m]
+    wind_profile: tuple[float, float, float] | None = None  # wind height, z0m station, z blend
+    blending_wind_speed: float = float("nan")  # station wind carried to the blending height
+    mask_values: tuple[int, ...] = ()  # cloud/QA mask values to drop
+    mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
+    member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
+
+
+def block_state(
+    ctx: BlockContext,
+    rows: slice,
+    cols: slice,
+    daily: bool = True,
+    candidates_only: bool = False,
+) -> dict[str, np.ndarray]:
+    """Read one window of every input and compute its surface state.
+
+    ``daily``: with the daily net radiation (pass 1 does not need it). ``candidates_only``: the
+    state of the pixels whose class may serve as an anchor only, as 1-D arrays, with their
+    row-major index in the window as ``window_index`` (pass 1 of the anchor method: the other
+    pixels never enter its histograms, and skipping them halved pass 1's time).
+    """
+    data = {}
+    normal = None
+    for source in ctx.sources:
+        if source.role == "elevation":
+            # one-pixel halo for the slope; edge pixels repeat beyond the grid
+            haloed = read_window(source, rows, cols, halo=1)
+            dx, dy = ctx.metric_pixel_size
+            normal = tuple(n[1:-1, 1:-1] for n in surface_normal(haloed, dx, dy))
+            data["elevation"] = haloed[1:-1, 1:-1]
+        else:
+            data[source.role] = read_window(source, rows, cols)
+    stats = {role: input_stats(role, values) for role, values in data.items()}
+    if ctx.remap:
+        data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
+            data["land_cover"], dict(ctx.remap)
+        )
+    masked = None
+    if "cloud_mask" in data:
+        masked = mask_pixels(data.pop("cloud_mask"), ctx.mask_values, ctx.mask_bits)
+    lon, lat, sun = pixel_geometry(ctx.grid, rows, cols, ctx.constants)
+    window_index = None
+    if candidates_only:
+        codes = land_cover_codes(data["land_cover"])
+        keep = (ctx.lookups.cold_anchor | ctx.lookups.hot_anchor)[codes] & np.isfinite(
+            data["land_cover"]
+        )
+        window_index = np.flatnonzero(keep)
+
+        def pick(values):
+            return values.reshape(-1)[window_index]
+
+        data = {k: pick(v) for k, v in data.items()}
+        lon, lat, sun = pick(lon), pick(lat), tuple(pick(s) for s in sun)
+        normal = None if normal is None else tuple(pick(n) for n in normal)
+        masked = None if masked is None else pick(masked)
+    state = surface_block(
+        ctx.constants,
+        ctx.lookups,
+        data["albedo"],
+        data["surface_temperature"],
+        data["land_cover"],
+        lat,
+        lon,
+        ndvi=data.get("ndvi"),
+        elevation=data.get("elevation"),
+        normal=normal,
+        sun=sun,
+        daily=daily,
+        masked=masked,
+        weather={k: data[k] for k in WEATHER_ROLES if k in data and k != "wind_speed_m_s"},
+    )
+    state["input_stats"] = stats
+    # wind at the blending height, per pixel from a wind grid or the station's one value
+    if "wind_speed_m_s" in data and ctx.wind_profile is not None:
+        height, station_roughness, blending_height = ctx.wind_profile
+        state["blending_wind_speed"] = anchor_method.wind_at_blending_height(
+            data["wind_speed_m_s"], height, station_roughness, blending_height
+        )
+    else:
+        state["blending_wind_speed"] = np.full(state["qa"].shape, ctx.blending_wind_speed)
+    if window_index is not None:
+        state["window_index"] = window_index
+    return state
+
+
+#: Per input and block: valid pixels, all pixels, min, max, and a unit-suspicion count
+#: (albedo above 1.5, surface temperature below 100 K).
+def input_stats(role: str, values: np.ndarray) -> np.ndarray:
+    finite = values[np.isfinite(values)]
+    if role == "albedo":
+        suspicious = np.count_nonzero(finite > 1.5)
+    elif role == "surface_temperature":
+        suspicious = np.count_nonzero(finite < 100.0)
+    else:
+        suspicious = 0
+    low = finite.min() if finite.size else np.inf
+    high = finite.max() if finite.size else -np.inf
+    return np.array([finite.size, values.size, low, high, suspicious], dtype=np.float64)
+
+
+def remap_codes(codes: np.ndarray, mapping: dict[int, int]) -> tuple[np.ndarray, dict]:
+    """Map a user's land-cover codes to class codes; count the codes the table leaves unmapped."""
+    finite = np.isfinite(codes)
+    values = codes[finite].astype(np.int64)
+    present, counts = np.unique(values, return_counts=True)
+    unmapped = {int(v): int(n) for v, n in zip(present, counts, strict=True) if v not in mapping}
+    out = np.full(codes.shape, np.nan)
+    keys = np.array(sorted(mapping), dtype=np.int64)
+    targets = np.array([mapping[k] for k in keys], dtype=np.float64)
+    where = np.searchsorted(keys, values).clip(0, keys.size - 1)
+    hit = keys[where] == values
+    mapped = np.full(values.shape, np.nan)
+    mapped[hit] = targets[where[hit]]
+    out[finite] = mapped
+    return out, unmapped
+
+
+def merge_input_stats(a: dict, b: dict) -> dict:
+    out = {}
+    for role in a:
+        if role == "land_cover_unmapped":
+            merged = dict(a[role])
+            for code, n in b[role].items():
+                merged[code] = merged.get(code, 0) + n
+            out[role] = merged
+            continue
+        x, y = a[role], b[role]
+        out[role] = np.array(
+            [x[0] + y[0], x[1] + y[1], min(x[2], y[2]), max(x[3], y[3]), x[4] + y[4]]
+        )
+    return out
+
+
+def check_input_values(stats: dict, sources: tuple[InputSource, ...]) -> dict:
+    """Refuse inputs that are all nodata or hold values in the wrong units; return a summary."""
+    summary = {}
+    unmapped = stats.get("land_cover_unmapped")
+    if unmapped:
+        listed = ", ".join(f"{code} ({n} pixels)" for code, n in sorted(unmapped.items())[:20])
+        raise InputValueError(
+            f"land-cover codes not in the remap table: {listed}; add them to the table named "
+            "by inputs.land_cover.remap."
+        )
+    for source in sources:
+        n_valid, n_total, low, high, suspicious = stats[source.role]
+        where = f"inputs.{source.role}"
+        if n_valid == 0 and source.role != "cloud_mask":
+            raise InputValueError(
+                f"{source.role} raster {source.path} holds no valid pixel on the albedo grid "
+                f"(all nodata); check the file and its nodata value ({where})."
+            )
+        if source.role == "albedo" and suspicious > 0.5 * n_valid:
+            raise InputValueError(
+                f"albedo raster {source.path} has values up to {high:.3g} (most above 1.5): it "
+                f'looks like percent; set {where} = {{ path = "...", units = "percent" }}, '
+                "or a scale factor."
+            )
+        if source.role == "surface_temperature" and suspicious > 0.5 * n_valid:
+            raise InputValueError(
+                f"surface temperature raster {source.path} has a median below 100 (values "
+                f"{low:.1f} to {high:.1f}): it looks like degrees Celsius; set {where} = "
+                f'{{ path = "...", units = "C" }}, or a scale/offset.'
+            )
+        summary[source.role] = {
+            "valid_fraction": n_valid / n_total if n_total else 0.0,
+            "min": low,
+            "max": high,
+        }
+    return summary
+
+
+def mask_pixels(mask: np.ndarray, values: tuple[int, ...], bits: tuple[int, ...]) -> np.ndarray:
+    """True where the cloud/QA mask holds a value to drop or has any of the given bits set.
+
+    Pixels outside the mask raster (nodata) are kept: the mask only removes what it flags.
+    """
+    finite = np.isfinite(mask)
+    codes = np.where(finite, mask, 0).astype(np.int64)
+    drop = np.isin(codes, values) if values else np.zeros(mask.shape, dtype=bool)
+    for bit in bits:
+        drop |= (codes >> bit) & 1 == 1
+    return drop & finite
+
+
+def pass1_block(ctx: BlockContext, location):
+    """Pass 1 for one block: read, surface state, then the method's histograms."""
+    (r0, r1), (c0, c1) = location
+    if ctx.method == "edges":
+        state = block_state(ctx, slice(r0, r1), slice(c0, c1), daily=False)
+        return edge_method.scatter_histogram_block(state), state["input_stats"]
+    state = block_state(ctx, slice(r0, r1), slice(c0, c1), daily=False, candidates_only=True)
+    # global row-major index of each candidate pixel (ties between blocks go to the lowest)
+    row, col = np.divmod(state["window_index"], c1 - c0)
+    flat = (row + r0).astype(np.float64) * ctx.grid.width + (col + c0)
+    members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
+    histograms = anchor_method.anchor_histograms_block(state, flat, members)
+    return histograms, state["input_stats"]
+
+
+def ensemble_block(ctx, p, state, valid, lam, lam_daily, length) -> dict[str, np.ndarray]:
+    """Daily ET of every ensemble member on one block, reduced to per-pixel percentiles."""
+    c = ctx.constants
+    ts = np.where(valid, state["surface_temperature"], np.nan)
+    daily = np.empty((len(p.members), *ts.shape))
+    for m, (member, calibration) in enumerate(p.members):
+        available, rho = perturbed_air(c, state, member.air_temperature_offset)
+        available = np.where(valid, available, np.nan)
+        # start from the central run's stability: members differ little, so 2-4 iterations do
+        h, _ = anchor_method.sensible_heat_block(
+            ts,
+            state["roughness_length"],
+            rho,
+            calibration,
+            p.blending_height,
+            p.max_iterations,
+            datum_surface_temperature=state["datum_surface_temperature"],
+            initial_inverse_length=length,
+            blending_wind_speed=state["blending_wind_speed"] * member.wind_factor,
+        )
+        le = partition.clip_latent_heat(available - h, c.max_evaporative_fraction * available)
+        if c.daily_scaling == "reference_et_fraction":
+            et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
+            daily[m] = et_hourly / c.reference_et_hourly * c.reference_et_daily
+        else:
+            ef = partition.evaporative_fraction(le, available)
+            daily[m] = partition.et_daily_from_evaporative_fraction(
+                ef, np.maximum(state["net_radiation_daily"], 0.0), lam_daily
+            )
+    low, high = ensemble_percentiles(daily)
+    return {"et_daily_p10": low, "et_daily_p90": high}
+
+
+@dataclass(frozen=True)
+class Pass2Parameters:
+    """What pass 2 needs from pass 1: the anchor calibration or the fitted edges."""
+
+    variables: tuple[str, ...]
+    calibration: anchor_method.Calibration | None = None
+    cold: anchor_method.Anchor | None = None
+    hot: anchor_method.Anchor | None = None
+    explicit_cold: bool = False
+    explicit_hot: bool = False
+    blending_height: float = 200.0
+    max_iterations: int = 30
+    edges: edge_method.Edges | None = None
+    members: tuple[tuple[Member, anchor_method.Calibration], ...] = ()
+    stability_start: anchor_method.StabilityStart | None = None
+
+
+def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
+    """Pass 2 for one block: read, all fluxes and QA, stacked along a leading variable axis."""
+    (r0, r1), (c0, c1) = location
+    state = block_state(ctx, slice(r0, r1), slice(c0, c1))
+    qa = state["qa"]
+    valid = state["valid"]
+    ts = state["surface_temperature"]
+    rn, g, available = state["net_radiation"], state["ground_heat_flux"], state["available_energy"]
+
+    inverse_length = np.zeros(ts.shape)
+    if p.edges is not None:
+        # H is what the edges leave of the available energy: (1 - EF) (Rn - G), unclipped here
+        ef_edges = edge_method.evaporative_fraction_block(
+            state["albedo"], state["datum_surface_temperature"], p.edges
+        )
+        h = np.where(valid, (1.0 - ef_edges) * available, np.nan)
+        converged = np.ones(ts.shape, dtype=bool)
+    else:
+        h, converged = anchor_method.sensible_heat_block(
+            np.where(valid, ts, np.nan),
+            state["roughness_length"],
+            state["air_density"],
+            p.calibration,
+            p.blending_height,
+            p.max_iterations,
+            datum_surface_temperature=state["datum_surface_temperature"],
+            inverse_length_out=inverse_length,
+            blending_wind_speed=state["blending_wind_speed"],
+            start=p.stability_start,
+        )
+    le_raw = partition.latent_heat_residual(rn, g, h)
+    # LE may exceed Rn - G only by max_evaporative_fraction (advection: H < 0); default 1
+    ceiling = ctx.constants.max_evaporative_fraction * available
+    le = partition.clip_latent_heat(le_raw, ceiling)
+    with np.errstate(invalid="ignore"):
+        clipped_low = valid & (le_raw < 0)
+        clipped_high = valid & (le_raw > np.maximum(ceiling, 0.0))
+    h = available - le  # closure Rn = G + H + LE holds after clipping
+    ef = partition.evaporative_fraction(le, available)
+    lam = turbulence.latent_heat_of_vaporization(ts)
+    lam_daily = turbulence.latent_heat_of_vaporization(
+        0.5 * (ctx.constants.tmax + ctx.constants.tmin)
+    )
+    et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
+    # A negative daily net radiation (snow, some nights-dominated days) evaporates nothing.
+    et_daily = partition.et_daily_from_evaporative_fraction(
+        ef, np.maximum(state["net_radiation_daily"], 0.0), lam_daily
+    )
+
+    def bit(mask, flag):
+        return np.where(mask, np.uint16(flag), np.uint16(0))
+
+    qa = qa | bit(clipped_low, QA.LATENT_HEAT_CLIPPED_AT_ZERO)
+    qa |= bit(clipped_high, QA.LATENT_HEAT_CLIPPED_AT_AVAILABLE)
+    qa |= bit(valid & ~converged, QA.STABILITY_NOT_CONVERGED)
+    anchor_bits = (
+        ()
+        if p.calibration is None
+        else (
+            (p.cold, p.explicit_cold, QA.COLD_ANCHOR, state["cold_candidate"]),
+            (p.hot, p.explicit_hot, QA.HOT_ANCHOR, state["hot_candidate"]),
+        )
+    )
+    for anchor, explicit, flag, candidates in anchor_bits:
+        if explicit:
+            if r0 <= anchor.row < r1 and c0 <= anchor.col < c1:
+                qa[anchor.row - r0, anchor.col - c0] |= np.uint16(flag)
+        else:
+            low, high = anchor.ts_range
+            datum = state["datum_surface_temperature"]
+            with np.errstate(invalid="ignore"):
+                qa |= bit(candidates & (datum >= low) & (datum < high), flag)
+
+    c = ctx.constants
+    ensemble = {}
+    if p.members:
+        ensemble = ensemble_block(ctx, p, state, valid, lam, lam_daily, length=inverse_length)
+    if c.reference_et_hourly is not None and c.reference_et_hourly > 0:
+        fraction = et_hourly / c.reference_et_hourly  # ET at overpass / hourly reference ET
+    else:
+        fraction = np.full(ts.shape, np.nan)
+    if c.daily_scaling == "reference_et_fraction":
+        et_daily = fraction * c.reference_et_daily
+
+    values = {
+        **ensemble,
+        "reference_et_fraction": fraction,
+        "net_radiation": rn,
+        "ground_heat_flux": g,
+        "sensible_heat_flux": h,
+        "latent_heat_flux": le,
+        "evaporative_fraction": ef,
+        "et_hourly": et_hourly,
+        "et_daily": et_daily,
+        "shortwave_in": state["shortwave_in"],
+        "longwave_in": state["longwave_in"],
+        "longwave_out": state["longwave_out"],
+        "net_radiation_daily": state["net_radiation_daily"],
+        QA_OUTPUT: qa,
+        "land_cover_code": state["codes"],
+    }
+    out = np.stack([np.asarray(values[v], dtype=np.float32) for v in p.variables])
+    return out
+
+
+def combine_block_summaries(a, b):
+    hists = dict(a[0])
+    for key, hist in b[0].items():
+        hists[key] = hist.merge(hists.get(key))
+    moments = a[1].copy()
+    moments[..., :3] += b[1][..., :3]
+    moments[..., 3] = np.minimum(a[1][..., 3], b[1][..., 3])
+    moments[..., 4] = np.maximum(a[1][..., 4], b[1][..., 4])
+    return hists, moments, a[2] + b[2], {**a[3], **b[3]}, {**a[4], **b[4]}
+
+
+def _decimated(block: np.ndarray, index: list[int], step: int, r0: int, c0: int) -> np.ndarray:
+    """The block's pixels on the scene-wide lattice of every ``step``-th row and column."""
+    return block[index, (-r0) % step :: step, (-c0) % step :: step].astype(np.float32)
+
+
+def block_summary(
+    block: np.ndarray,
+    variables: tuple[str, ...],
+    class_codes: list[int],
+    thumbnail: tuple[list[int], int, int, int] | None = None,
+    tiles: tuple[list[int], int, int, int] | None = None,
+):
+    """Per-class histograms and moments of one pass-2 block, its pixels per QA bit and, given
+    ``thumbnail = (variable indices, step, r0, c0)``, its quick-look pixels keyed by (r0, c0);
+    given ``tiles = (variable indices, tile, r0, c0)`` with tiles that lie inside blocks, the
+    statistics of its tiles keyed by (tile row, tile col).
+
+    Quick-look pixels and tile statistics come from this task rather than tasks of their own: as
+    separate leaf tasks dask ran them late and held the pass-2 blocks until then (+350 MB at
+    1024 blocks for the quick-look; the peak grew with the block count).
+    """
+    values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES if name in variables}
+    codes = block[variables.index("land_cover_code")].astype(np.intp)
+    qa = block[variables.index(QA_OUTPUT)].astype(np.uint16)
+    qa_counts = np.array([np.count_nonzero(qa & np.uint16(b)) for b in QA], dtype=np.int64)
+    thumbs = {}
+    if thumbnail is not None:
+        index, step, r0, c0 = thumbnail
+        thumbs[r0, c0] = _decimated(block, index, step, r0, c0)
+    stats = {}
+    if tiles is not None:
+        index, tile, r0, c0 = tiles
+        summarised = block[index]
+        for tr in range(0, block.shape[1], tile):
+            for tc in range(0, block.shape[2], tile):
+                part = summarised[:, tr : tr + tile, tc : tc + tile]
+                stats[(r0 + tr) // tile, (c0 + tc) // tile] = tile_statistics(part)
+    return (*class_histograms(values, codes, class_codes), qa_counts, thumbs, stats)
+
+
+def pass2_write_block(ctx: BlockContext, p: Pass2Parameters, location, summary_args, targets):
+    """Pass 2 of one block, its windows written to every target, and its summary returned.
+
+    ``targets``: (variable index, data type, target) with targets that take
+    ``target[rows, cols] = values`` (GeoTIFF writers, Zarr arrays); ``summary_args``: the
+    arguments of :func:`block_summary` after the block.
+    """
+    block = pass2_block(ctx, p, location)
+    (r0, r1), (c0, c1) = location
+    window = (slice(r0, r1), slice(c0, c1))
+    for k, dtype, target in targets:
+        target[window] = block[k].astype(dtype, copy=False)  # float32 outputs: no copy
+    return block_summary(block, *summary_args)
