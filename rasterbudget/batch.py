@@ -19,6 +19,7 @@ from .catalog.classes import ClassTable
 from .errors import RasterBudgetError
 from .io.paths import is_remote
 from .io.writers import write_text_atomic
+from .methods import METHODS
 from .recipe import Recipe, Scene, resolve_raster_path
 from .scene.run import RunSettings, run_scene
 from .scene.summaries import rows_to_csv
@@ -95,9 +96,10 @@ class SceneOutcome:
             "message": self.message,
             "method": m.get("sensible_heat_method", ""),
         }
-        anchors = m.get("anchors", {})
-        row["cold_anchor_ts_k"] = anchors.get("cold", {}).get("surface_temperature", "")
-        row["hot_anchor_ts_k"] = anchors.get("hot", {}).get("surface_temperature", "")
+        # every method's own columns, filled by the scene's method (blank for the others)
+        row |= {column: "" for method in METHODS.values() for column in method.batch_columns}
+        if m.get("sensible_heat_method") in METHODS:
+            row |= METHODS[m["sensible_heat_method"]].batch_values(m)
         means = m.get("scene_means_all", {})
         for name in (
             "net_radiation",

@@ -159,6 +159,7 @@ def _run(
         compression=parsed.run.compression,
     )
     from .batch import run_batch
+    from .methods import get_method
 
     def report(outcome) -> None:
         if quiet and outcome.status != "failed":
@@ -168,18 +169,7 @@ def _run(
                 click.echo(f"{outcome.scene_id}: FAILED: {outcome.message}", err=True)
             return
         m = outcome.manifest
-        if m.get("sensible_heat_method") == "edges":
-            e = m["edges"]
-            how = (
-                f"dry edge {e['dry_intercept']:.1f} {e['dry_slope']:+.1f} albedo K, "
-                f"wet edge {e['wet_intercept']:.1f} {e['wet_slope']:+.1f} albedo K"
-            )
-        else:
-            a = m["anchors"]
-            how = (
-                f"cold anchor {a['cold']['surface_temperature']:.2f} K, "
-                f"hot anchor {a['hot']['surface_temperature']:.2f} K"
-            )
+        how = get_method(m["sensible_heat_method"]).summary(m)
         verb = "done" if outcome.status == "done" else "skipped (complete, up to date)"
         click.echo(
             f"{outcome.scene_id}: {verb} in {outcome.seconds:.1f} s -> "

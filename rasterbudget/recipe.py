@@ -15,9 +15,21 @@ import tomllib
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    field_validator,
+    model_serializer,
+    model_validator,
+)
 
 from .errors import RecipeError
+from .methods import METHODS, get_method
+from .methods.anchors import AnchorSettings
+from .methods.edges import EdgeSettings
+from .methods.ensemble import UncertaintySettings
 
 Percent = Annotated[float, Field(ge=0.0, le=100.0)]
 
@@ -168,37 +180,6 @@ class RadiationOptions(_Strict):
     min_sun_elevation_deg: float = Field(10.0, ge=0.0, le=60.0)
 
 
-class AnchorSettings(_Strict):
-    """``[scene.anchors]``: hot/cold anchor calibration of the sensible heat flux."""
-
-    cold_percentile: float = Field(5.0, gt=0.0, lt=50.0)
-    hot_percentile: float = Field(95.0, gt=50.0, lt=100.0)
-    percentile_band: float = Field(1.0, gt=0.0, le=10.0)
-    cold_min_ndvi: float = Field(0.6, ge=-1.0, le=1.0)
-    hot_max_ndvi: float = Field(0.25, ge=-1.0, le=1.0)
-    cold_evaporative_fraction: float = Field(1.0, ge=0.0, le=1.2)
-    hot_evaporative_fraction: float = Field(0.0, ge=0.0, le=0.5)
-    cold_xy: tuple[float, float] | None = None
-    hot_xy: tuple[float, float] | None = None
-    surface_lapse_rate_k_per_km: float = Field(6.5, ge=0.0, le=15.0)
-    max_elevation_difference_m: float = Field(500.0, gt=0.0)
-    blending_height_m: float = Field(200.0, ge=20.0, le=1000.0)
-    station_roughness_m: float = Field(0.0148, gt=0.0, le=2.0)
-    max_iterations: int = Field(30, ge=1, le=200)
-    tolerance_k: float = Field(0.001, gt=0.0, le=1.0)
-    min_candidates: int = Field(20, ge=1)
-
-
-class EdgeSettings(_Strict):
-    """``[scene.edges]``: dry and wet edges of the surface temperature-albedo scatter."""
-
-    dry_percentile: float = Field(99.0, gt=50.0, lt=100.0)
-    wet_percentile: float = Field(1.0, gt=0.0, lt=50.0)
-    min_pixels_per_bin: int = Field(50, ge=5)
-    min_bins: int = Field(4, ge=3)
-    wet_edge: Literal["flat", "fitted"] = "flat"
-
-
 class ReferenceEtSettings(_Strict):
     """``[scene.reference_et]``: FAO-56 / ASCE-EWRI standardized reference ET at the station."""
 
@@ -210,34 +191,6 @@ class ResidualSettings(_Strict):
     """``[scene.residual]``: limits on the energy-balance residual."""
 
     max_evaporative_fraction: float = Field(1.0, ge=1.0, le=1.3)
-
-
-class UncertaintySettings(_Strict):
-    """``[scene.uncertainty]``: ensemble members over what is not known well (anchors method)."""
-
-    members: int = Field(0, ge=0, le=64)
-    cold_percentile_range: tuple[float, float] = (2.0, 10.0)
-    hot_percentile_range: tuple[float, float] = (90.0, 98.0)
-    cold_anchor_factor_range: tuple[float, float] = (0.95, 1.05)
-    air_temperature_offset_range_c: tuple[float, float] = (-1.5, 1.5)
-    wind_factor_range: tuple[float, float] = (0.8, 1.2)
-    seed: int = 20260612
-
-    @model_validator(mode="after")
-    def _ordered(self) -> UncertaintySettings:
-        for name in (
-            "cold_percentile_range",
-            "hot_percentile_range",
-            "cold_anchor_factor_range",
-            "air_temperature_offset_range_c",
-            "wind_factor_range",
-        ):
-            low, high = getattr(self, name)
-            if low > high:
-                raise ValueError(f"{name} must be [low, high], got [{low}, {high}]")
-        if self.members == 1:
-            raise ValueError("members must be 0 (no ensemble) or at least 2")
-        return self
 
 
 class GridSettings(_Strict):
@@ -270,7 +223,7 @@ class Scene(_Strict):
     daily: DailyWeather
     daily_table: str | None = None  # CSV the daily weather was read from (row of the date)
     grid: GridSettings | None = None
-    sensible_heat: Literal["anchors", "edges"] = "anchors"
+    sensible_heat: str = "anchors"  # a registered method (methods.METHODS)
     daily_scaling: Literal["evaporative_fraction", "reference_et_fraction"] = "evaporative_fraction"
     reference_et: ReferenceEtSettings = ReferenceEtSettings()
     radiation: RadiationOptions = RadiationOptions()
@@ -278,6 +231,56 @@ class Scene(_Strict):
     edges: EdgeSettings = EdgeSettings()
     residual: ResidualSettings = ResidualSettings()
     uncertainty: UncertaintySettings = UncertaintySettings()
+    # settings tables of registered methods that are not fields above, by table name
+    method_tables: dict[str, dict[str, Any]] = {}
+
+    @model_validator(mode="before")
+    @classmethod
+    def _tables_of_added_methods(cls, data: Any) -> Any:
+        """A registered method's ``[scene.<key>]`` table (not a field above) is kept apart."""
+        if not isinstance(data, dict):
+            return data
+        keys = {
+            m.settings_key
+            for m in METHODS.values()
+            if m.settings_key and m.settings_key not in cls.model_fields
+        }
+        tables = {k: data[k] for k in keys if k in data}
+        if not tables:
+            return data
+        return {k: v for k, v in data.items() if k not in tables} | {"method_tables": tables}
+
+    @model_serializer(mode="wrap")
+    def _without_empty_tables(self, handler):
+        dumped = handler(self)
+        if not dumped.get("method_tables"):
+            dumped.pop("method_tables", None)
+        return dumped
+
+    def method_settings(self, key: str, model: type[BaseModel]) -> BaseModel:
+        """The settings table ``[scene.<key>]`` of a method as its model (defaults filled)."""
+        if key in type(self).model_fields:
+            return getattr(self, key)
+        return model.model_validate(self.method_tables.get(key, {}))
+
+    @model_validator(mode="after")
+    def _what_the_choices_need(self) -> Scene:
+        """Rules between keys, checked before any pixel is read (run and inspect alike)."""
+        method = get_method(self.sensible_heat)
+        for table, values in self.method_tables.items():
+            owner = next(m for m in METHODS.values() if m.settings_key == table)
+            owner.settings_model.model_validate(values)  # errors name the table's keys
+        for key, why in method.needs:
+            section, name = key.split(".")
+            if getattr(getattr(self, section), name) is None:
+                raise ValueError(f"sensible_heat = '{method.name}' needs {key} ({why})")
+        if self.uncertainty.members and not method.ensemble:
+            with_ensemble = sorted(n for n, m in METHODS.items() if m.ensemble)
+            raise ValueError(
+                f"uncertainty.members is implemented for sensible_heat = {with_ensemble} only; "
+                "remove [scene.uncertainty] or change the method"
+            )
+        return self
 
     @field_validator("acquired_utc")
     @classmethod

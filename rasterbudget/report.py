@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from .io.writers import write_text_atomic
+from .methods import METHODS
 from .scene.manifest import CAUTION
 
 
@@ -102,31 +103,22 @@ def _scene_section(folder: Path) -> str:
     ax.legend()
     parts.append("<h3>How available energy splits per land-cover class</h3>")
     parts.append(_img(_png(fig), "energy partition"))
-    # anchors on the map, or the edges scatter
-    if manifest.get("sensible_heat_method") == "anchors":
+    # the method's picture: points on the daily-ET map (anchors), or a file of its own (edges)
+    figure = METHODS[manifest["sensible_heat_method"]].report_figure(manifest, folder)
+    if figure is not None and figure.image is not None:
+        parts.append(f"<h3>{figure.title}</h3>" + _file_img(figure.image, figure.image.stem))
+    elif figure is not None:
         data, (bounds, _) = _read_small(folder / "et_daily.tif")
         fig, ax = plt.subplots(figsize=(6, 4.5))
         fig.subplots_adjust(left=0.12, right=0.95, bottom=0.08, top=0.95)
         image = ax.imshow(
             data, cmap="YlGnBu", extent=(bounds.left, bounds.right, bounds.bottom, bounds.top)
         )
-        for role, color in (("cold", "royalblue"), ("hot", "firebrick")):
-            a = manifest["anchors"][role]
-            ax.plot(
-                a["x"],
-                a["y"],
-                "o",
-                mfc="none",
-                mec=color,
-                ms=12,
-                mew=2,
-                label=f"{role} anchor {a['surface_temperature']:.1f} K",
-            )
+        for x, y, label, colour in figure.markers:
+            ax.plot(x, y, "o", mfc="none", mec=colour, ms=12, mew=2, label=label)
         ax.legend(loc="lower right")
         fig.colorbar(image, ax=ax, label="mm d-1")
-        parts.append("<h3>Daily ET with the anchors</h3>" + _img(_png(fig), "anchors"))
-    elif (folder / "edges.png").is_file():
-        parts.append("<h3>Temperature-albedo edges</h3>" + _file_img(folder / "edges.png", "edges"))
+        parts.append(f"<h3>{figure.title}</h3>" + _img(_png(fig), "anchors"))
     parts.append(
         "<h3>Per class</h3>"
         + _table(

@@ -15,15 +15,50 @@ whatever the chunking - unlike dask's approximate percentile, measured several k
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import asdict, dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
+from pydantic import Field
 
-from ..errors import AnchorError
-from ..physics import turbulence
-from ..physics.constants import SPECIFIC_HEAT_AIR
+from ..catalog.qa import QA
+from ..errors import AnchorError, RasterBudgetError
+from ..physics import partition, turbulence
+from ..physics.constants import SECONDS_PER_HOUR, SPECIFIC_HEAT_AIR
+from ..surface import perturbed_air
+from .base import (
+    Calibrated,
+    CalibrationContext,
+    ReportFigure,
+    SensibleHeatMethod,
+    StrictSettings,
+    register,
+)
+from .ensemble import ensemble_percentiles, sample_members
 from .histograms import RangeHistogram, merge_optional, range_histogram
+
+
+class AnchorSettings(StrictSettings):
+    """``[scene.anchors]``: hot/cold anchor calibration of the sensible heat flux."""
+
+    cold_percentile: float = Field(5.0, gt=0.0, lt=50.0)
+    hot_percentile: float = Field(95.0, gt=50.0, lt=100.0)
+    percentile_band: float = Field(1.0, gt=0.0, le=10.0)
+    cold_min_ndvi: float = Field(0.6, ge=-1.0, le=1.0)
+    hot_max_ndvi: float = Field(0.25, ge=-1.0, le=1.0)
+    cold_evaporative_fraction: float = Field(1.0, ge=0.0, le=1.2)
+    hot_evaporative_fraction: float = Field(0.0, ge=0.0, le=0.5)
+    cold_xy: tuple[float, float] | None = None
+    hot_xy: tuple[float, float] | None = None
+    surface_lapse_rate_k_per_km: float = Field(6.5, ge=0.0, le=15.0)
+    max_elevation_difference_m: float = Field(500.0, gt=0.0)
+    blending_height_m: float = Field(200.0, ge=20.0, le=1000.0)
+    station_roughness_m: float = Field(0.0148, gt=0.0, le=2.0)
+    max_iterations: int = Field(30, ge=1, le=200)
+    tolerance_k: float = Field(0.001, gt=0.0, le=1.0)
+    min_candidates: int = Field(20, ge=1)
+
 
 #: Surface-temperature histogram: lower edge, upper edge and bin width [K].
 TS_LOW, TS_HIGH, TS_STEP = 200.0, 350.0, 0.01
@@ -579,3 +614,273 @@ def _iterate_pixels(
             )
         inverse_length = _inverse_obukhov(rho, u_star, ts, h_new)
         h_prev = h_new
+
+
+# ----------------------------------------------------------------------------- the method
+
+
+@dataclass(frozen=True)
+class AnchorParameters:
+    """What pass 2 needs from the anchor calibration."""
+
+    calibration: Calibration
+    cold: Anchor
+    hot: Anchor
+    explicit_cold: bool
+    explicit_hot: bool
+    blending_height: float
+    max_iterations: int
+    stability_start: StabilityStart
+
+
+def _anchor_map_xy(grid, anchor: Anchor) -> dict:
+    """Map coordinates of the anchor's pixel centre on a north-up grid."""
+    t = grid.transform
+    return {"x": t.c + (anchor.col + 0.5) * t.a, "y": t.f + (anchor.row + 0.5) * t.e}
+
+
+class AnchorMethod(SensibleHeatMethod):
+    """Hot/cold anchor calibration of dT = a + b Ts (Bastiaanssen et al. 1998)."""
+
+    name = "anchors"
+    settings_key = "anchors"
+    settings_model = AnchorSettings
+    needs = (
+        ("overpass.wind_speed_m_s", "the anchor calibration needs the wind; 'edges' does not"),
+    )
+    ensemble = True
+    pass1_candidates_only = True
+    batch_columns = ("cold_anchor_ts_k", "hot_anchor_ts_k")
+
+    def pass1_block(self, state, location, ctx):
+        """Per-role Ts histograms of the anchor candidates, with per-member energy rows."""
+        (r0, _), (c0, c1) = location
+        # global row-major index of each candidate pixel (ties between blocks go to the lowest)
+        row, col = np.divmod(state["window_index"], c1 - c0)
+        flat = (row + r0).astype(np.float64) * ctx.grid.width + (col + c0)
+        members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
+        return anchor_histograms_block(state, flat, members)
+
+    def combine(self, a, b):
+        return combine_histograms(a, b)
+
+    def calibrate(self, reduced, ctx: CalibrationContext) -> Calibrated:
+        """Choose (or read) both anchors and fit dT = a + b Ts, for the run and every member."""
+        s, scene = ctx.settings, ctx.scene
+        chosen, explicit, pixel_states = {}, {}, {}
+        percentiles = {"cold": s.cold_percentile, "hot": s.hot_percentile}
+        for r, (role, xy) in enumerate((("cold", s.cold_xy), ("hot", s.hot_xy))):
+            explicit[role] = xy is not None
+            if xy is None:
+                chosen[role] = select_anchor(
+                    dense_histogram(reduced[r]),
+                    role,
+                    percentiles[role],
+                    s.percentile_band,
+                    s.min_candidates,
+                    ctx.grid.width,
+                )
+                continue
+            row, col = _pixel_of(ctx.grid, xy, role, scene.id)
+            pixel_states[role] = ctx.pixel_state(row, col)
+            chosen[role] = anchor_from_pixel(pixel_states[role], role, row, col, (0, 0))
+        k_ref = scene.reference_et.cold_anchor_fraction
+        gridded_wind = "wind_speed_m_s" in ctx.gridded_weather
+
+        def cold_condition(cold: Anchor, factor: float = 1.0) -> float:
+            """The cold anchor's imposed EF: given, or k ETr(hour) as a flux over Rn - G."""
+            if k_ref is None:
+                return min(factor * s.cold_evaporative_fraction, 1.2)
+            lam = float(turbulence.latent_heat_of_vaporization(cold.surface_temperature))
+            cold_le = factor * k_ref * ctx.constants.reference_et_hourly * lam / SECONDS_PER_HOUR
+            return min(cold_le / cold.available_energy, 1.2)
+
+        def fit(anchors: dict, fraction: float, wind_factor: float | None = None) -> Calibration:
+            return calibrate(
+                anchors["cold"],
+                anchors["hot"],
+                ctx.blending_wind_speed * (1.0 if wind_factor is None else wind_factor),
+                s.blending_height_m,
+                fraction,
+                s.hot_evaporative_fraction,
+                s.max_iterations,
+                s.tolerance_k,
+                gridded_wind=gridded_wind,
+                **({} if wind_factor is None else {"wind_factor": wind_factor}),
+            )
+
+        cold_fraction = cold_condition(chosen["cold"])
+        calibration = fit(chosen, cold_fraction)
+        params = AnchorParameters(
+            calibration=calibration,
+            cold=chosen["cold"],
+            hot=chosen["hot"],
+            explicit_cold=explicit["cold"],
+            explicit_hot=explicit["hot"],
+            blending_height=s.blending_height_m,
+            max_iterations=s.max_iterations,
+            # where each pixel's stability iteration starts: the anchors' mean air density
+            stability_start=stability_start(
+                calibration,
+                ctx.lookups.roughness_length,
+                0.5 * (chosen["cold"].air_density + chosen["hot"].air_density),
+                s.blending_height_m,
+            ),
+        )
+        facts = {
+            "anchors": {k: v.as_dict() | _anchor_map_xy(ctx.grid, v) for k, v in chosen.items()},
+            "calibration": calibration.as_dict() | {"cold_evaporative_fraction": cold_fraction},
+        }
+        # ensemble members: the same pass-1 histograms, perturbed choices and weather
+        members = []
+        dense = [dense_histogram(reduced[r], len(ctx.member_air_offsets)) for r in range(2)]
+        for m, member in enumerate(sample_members(scene.uncertainty)):
+            anchors_m = {}
+            for r, role in enumerate(ROLES):
+                if explicit[role]:
+                    st = pixel_states[role]
+                    available, rho = perturbed_air(ctx.constants, st, member.air_temperature_offset)
+                    anchors_m[role] = dataclasses.replace(
+                        chosen[role],
+                        available_energy=float(available[0, 0]),
+                        air_density=float(rho[0, 0]),
+                    )
+                else:
+                    pct = member.cold_percentile if role == "cold" else member.hot_percentile
+                    anchors_m[role] = select_anchor(
+                        member_histogram(dense[r], m),
+                        role,
+                        pct,
+                        s.percentile_band,
+                        s.min_candidates,
+                        ctx.grid.width,
+                    )
+            fraction_m = cold_condition(anchors_m["cold"], member.cold_anchor_factor)
+            members.append((member, fit(anchors_m, fraction_m, member.wind_factor)))
+        if members:
+            facts["ensemble"] = [
+                m.as_dict() | {"a": c.a, "b": c.b, "converged": c.converged} for m, c in members
+            ]
+        return Calibrated(params=params, facts=facts, members=tuple(members))
+
+    def sensible_heat_block(self, state, params, constants, inverse_length_out):
+        return sensible_heat_block(
+            np.where(state["valid"], state["surface_temperature"], np.nan),
+            state["roughness_length"],
+            state["air_density"],
+            params.calibration,
+            params.blending_height,
+            params.max_iterations,
+            datum_surface_temperature=state["datum_surface_temperature"],
+            inverse_length_out=inverse_length_out,
+            blending_wind_speed=state["blending_wind_speed"],
+            start=params.stability_start,
+        )
+
+    def qa_block(self, state, params, location):
+        """The anchor populations (or the given anchor pixels) flagged in the QA raster."""
+        (r0, r1), (c0, c1) = location
+        qa = np.zeros(state["qa"].shape, dtype=np.uint16)
+        for anchor, explicit, flag, candidates in (
+            (params.cold, params.explicit_cold, QA.COLD_ANCHOR, state["cold_candidate"]),
+            (params.hot, params.explicit_hot, QA.HOT_ANCHOR, state["hot_candidate"]),
+        ):
+            if explicit:
+                if r0 <= anchor.row < r1 and c0 <= anchor.col < c1:
+                    qa[anchor.row - r0, anchor.col - c0] |= np.uint16(flag)
+            else:
+                low, high = anchor.ts_range
+                datum = state["datum_surface_temperature"]
+                with np.errstate(invalid="ignore"):
+                    inside = candidates & (datum >= low) & (datum < high)
+                qa |= np.where(inside, np.uint16(flag), np.uint16(0))
+        return qa
+
+    def ensemble_block(self, state, params, members, constants, valid, lam, lam_daily, length):
+        """Daily ET of every ensemble member on one block, reduced to per-pixel percentiles."""
+        c = constants
+        ts = np.where(valid, state["surface_temperature"], np.nan)
+        daily = np.empty((len(members), *ts.shape))
+        for m, (member, calibration) in enumerate(members):
+            available, rho = perturbed_air(c, state, member.air_temperature_offset)
+            available = np.where(valid, available, np.nan)
+            # start from the central run's stability: members differ little, 2-4 iterations do
+            h, _ = sensible_heat_block(
+                ts,
+                state["roughness_length"],
+                rho,
+                calibration,
+                params.blending_height,
+                params.max_iterations,
+                datum_surface_temperature=state["datum_surface_temperature"],
+                initial_inverse_length=length,
+                blending_wind_speed=state["blending_wind_speed"] * member.wind_factor,
+            )
+            le = partition.clip_latent_heat(available - h, c.max_evaporative_fraction * available)
+            if c.daily_scaling == "reference_et_fraction":
+                et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
+                daily[m] = et_hourly / c.reference_et_hourly * c.reference_et_daily
+            else:
+                ef = partition.evaporative_fraction(le, available)
+                daily[m] = partition.et_daily_from_evaporative_fraction(
+                    ef, np.maximum(state["net_radiation_daily"], 0.0), lam_daily
+                )
+        low, high = ensemble_percentiles(daily)
+        return {"et_daily_p10": low, "et_daily_p90": high}
+
+    def summary(self, facts):
+        a = facts["anchors"]
+        return (
+            f"cold anchor {a['cold']['surface_temperature']:.2f} K, "
+            f"hot anchor {a['hot']['surface_temperature']:.2f} K"
+        )
+
+    def batch_values(self, manifest):
+        anchors = manifest.get("anchors", {})
+        return {
+            "cold_anchor_ts_k": anchors.get("cold", {}).get("surface_temperature", ""),
+            "hot_anchor_ts_k": anchors.get("hot", {}).get("surface_temperature", ""),
+        }
+
+    def report_figure(self, manifest, folder):
+        markers = tuple(
+            (
+                manifest["anchors"][role]["x"],
+                manifest["anchors"][role]["y"],
+                f"{role} anchor {manifest['anchors'][role]['surface_temperature']:.1f} K",
+                colour,
+            )
+            for role, colour in (("cold", "royalblue"), ("hot", "firebrick"))
+        )
+        return ReportFigure("Daily ET with the anchors", markers=markers)
+
+    def inspect(self, scene, state, factor):
+        s = scene.anchors
+        lines = []
+        for role in ROLES:
+            n = int(state[f"{role}_candidate"].sum()) * factor**2
+            lines.append(f"  {role}-anchor candidates: about {n}")
+            if n < s.min_candidates and getattr(s, f"{role}_xy") is None:
+                raise AnchorError(
+                    f"scene {scene.id}: about {n} {role}-anchor candidate pixels (need "
+                    f"{s.min_candidates}); see the per-class table above, lower the "
+                    f"NDVI threshold or give anchors.{role}_xy."
+                )
+        return lines
+
+
+def _pixel_of(grid, xy: tuple[float, float], role: str, scene_id: str) -> tuple[int, int]:
+    """Row and column of a given anchor's map coordinates; refused outside the grid."""
+    import rasterio
+
+    row, col = rasterio.transform.rowcol(grid.transform, *xy)
+    if not (0 <= row < grid.height and 0 <= col < grid.width):
+        raise RasterBudgetError(
+            f"scene {scene_id}: anchors.{role}_xy = {list(xy)} lies outside the scene "
+            f"grid {tuple(round(b) for b in grid.bounds)}; give map coordinates in "
+            f"{grid.crs.to_string()}."
+        )
+    return row, col
+
+
+register(AnchorMethod())

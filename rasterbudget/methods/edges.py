@@ -17,11 +17,32 @@ evaporation-controlled branch), each with the Theil-Sen estimator (scipy), robus
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass
+from typing import Literal
 
 import numpy as np
+from pydantic import Field
 
 from ..errors import AnchorError
+from .base import (
+    Calibrated,
+    CalibrationContext,
+    ReportFigure,
+    SensibleHeatMethod,
+    StrictSettings,
+    register,
+)
 from .histograms import RangeHistogram, merge_optional, range_histogram
+
+
+class EdgeSettings(StrictSettings):
+    """``[scene.edges]``: dry and wet edges of the surface temperature-albedo scatter."""
+
+    dry_percentile: float = Field(99.0, gt=50.0, lt=100.0)
+    wet_percentile: float = Field(1.0, gt=0.0, lt=50.0)
+    min_pixels_per_bin: int = Field(50, ge=5)
+    min_bins: int = Field(4, ge=3)
+    wet_edge: Literal["flat", "fitted"] = "flat"
+
 
 #: 2-D histogram layout: albedo bins [-] and surface-temperature bins [K].
 ALBEDO_STEP = 0.005
@@ -194,3 +215,59 @@ def scatter_picture(histogram: RangeHistogram, edges: Edges, path, title: str) -
     fig.colorbar(image, ax=ax, label="pixels")
     fig.savefig(path, dpi=90, format="png")
     plt.close(fig)
+
+
+# ----------------------------------------------------------------------------- the method
+
+
+class EdgeMethod(SensibleHeatMethod):
+    """Dry and wet edges of the Ts-albedo scatter (Roerink, Su & Menenti 2000)."""
+
+    name = "edges"
+    settings_key = "edges"
+    settings_model = EdgeSettings
+
+    def pass1_block(self, state, location, ctx):
+        return scatter_histogram_block(state)
+
+    def combine(self, a, b):
+        return merge_optional(a, b)
+
+    def calibrate(self, reduced, ctx: CalibrationContext) -> Calibrated:
+        e = ctx.settings
+        fitted = fit_edges(
+            reduced,
+            e.dry_percentile,
+            e.wet_percentile,
+            e.min_pixels_per_bin,
+            e.min_bins,
+            e.wet_edge,
+        )
+        return Calibrated(params=fitted, facts={"edges": fitted.as_dict()})
+
+    def sensible_heat_block(self, state, params, constants, inverse_length_out):
+        # H is what the edges leave of the available energy: (1 - EF) (Rn - G), unclipped here
+        ef = evaporative_fraction_block(state["albedo"], state["datum_surface_temperature"], params)
+        h = np.where(state["valid"], (1.0 - ef) * state["available_energy"], np.nan)
+        return h, np.ones(h.shape, dtype=bool)
+
+    def extra_outputs(self, reduced, params, out_dir, title):
+        picture = out_dir / "edges.png"
+        partial = picture.with_name(picture.name + ".partial")
+        scatter_picture(reduced, params, partial, f"{title}: surface temperature against albedo")
+        return {"edges.png": partial.replace(picture)}
+
+    def summary(self, facts):
+        e = facts["edges"]
+        return (
+            f"dry edge {e['dry_intercept']:.1f} {e['dry_slope']:+.1f} albedo K, "
+            f"wet edge {e['wet_intercept']:.1f} {e['wet_slope']:+.1f} albedo K"
+        )
+
+    def report_figure(self, manifest, folder):
+        if not (folder / "edges.png").is_file():
+            return None
+        return ReportFigure("Temperature-albedo edges", image=folder / "edges.png")
+
+
+register(EdgeMethod())

@@ -13,8 +13,38 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass
 
 import numpy as np
+from pydantic import Field, model_validator
 
-from ..recipe import UncertaintySettings
+from .base import StrictSettings
+
+
+class UncertaintySettings(StrictSettings):
+    """``[scene.uncertainty]``: ensemble members over what is not known well (anchors method)."""
+
+    members: int = Field(0, ge=0, le=64)
+    cold_percentile_range: tuple[float, float] = (2.0, 10.0)
+    hot_percentile_range: tuple[float, float] = (90.0, 98.0)
+    cold_anchor_factor_range: tuple[float, float] = (0.95, 1.05)
+    air_temperature_offset_range_c: tuple[float, float] = (-1.5, 1.5)
+    wind_factor_range: tuple[float, float] = (0.8, 1.2)
+    seed: int = 20260612
+
+    @model_validator(mode="after")
+    def _ordered(self) -> UncertaintySettings:
+        for name in (
+            "cold_percentile_range",
+            "hot_percentile_range",
+            "cold_anchor_factor_range",
+            "air_temperature_offset_range_c",
+            "wind_factor_range",
+        ):
+            low, high = getattr(self, name)
+            if low > high:
+                raise ValueError(f"{name} must be [low, high], got [{low}, {high}]")
+        if self.members == 1:
+            raise ValueError("members must be 0 (no ensemble) or at least 2")
+        return self
+
 
 #: Percentiles of the member distribution written per pixel.
 ENSEMBLE_PERCENTILES = (10.0, 90.0)

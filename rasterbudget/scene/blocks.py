@@ -7,6 +7,7 @@ windows and returns small arrays, so the passes never hold more than a block per
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -22,8 +23,7 @@ from ..io.writers import (
     QA_OUTPUT,
 )
 from ..methods import anchors as anchor_method
-from ..methods import edges as edge_method
-from ..methods.ensemble import Member, ensemble_percentiles
+from ..methods import get_method
 from ..physics import partition, turbulence
 from ..physics.constants import SECONDS_PER_HOUR
 from ..physics.solar import (
@@ -33,7 +33,6 @@ from ..surface import (
     ClassLookups,
     SceneConstants,
     land_cover_codes,
-    perturbed_air,
     surface_block,
 )
 from .geometry import pixel_geometry
@@ -241,68 +240,26 @@ def mask_pixels(mask: np.ndarray, values: tuple[int, ...], bits: tuple[int, ...]
 
 
 def pass1_block(ctx: BlockContext, location):
-    """Pass 1 for one block: read, surface state, then the method's histograms."""
+    """Pass 1 for one block: read, surface state, then the method's partial reduction."""
     (r0, r1), (c0, c1) = location
-    if ctx.method == "edges":
-        state = block_state(ctx, slice(r0, r1), slice(c0, c1), daily=False)
-        return edge_method.scatter_histogram_block(state), state["input_stats"]
-    state = block_state(ctx, slice(r0, r1), slice(c0, c1), daily=False, candidates_only=True)
-    # global row-major index of each candidate pixel (ties between blocks go to the lowest)
-    row, col = np.divmod(state["window_index"], c1 - c0)
-    flat = (row + r0).astype(np.float64) * ctx.grid.width + (col + c0)
-    members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
-    histograms = anchor_method.anchor_histograms_block(state, flat, members)
-    return histograms, state["input_stats"]
-
-
-def ensemble_block(ctx, p, state, valid, lam, lam_daily, length) -> dict[str, np.ndarray]:
-    """Daily ET of every ensemble member on one block, reduced to per-pixel percentiles."""
-    c = ctx.constants
-    ts = np.where(valid, state["surface_temperature"], np.nan)
-    daily = np.empty((len(p.members), *ts.shape))
-    for m, (member, calibration) in enumerate(p.members):
-        available, rho = perturbed_air(c, state, member.air_temperature_offset)
-        available = np.where(valid, available, np.nan)
-        # start from the central run's stability: members differ little, so 2-4 iterations do
-        h, _ = anchor_method.sensible_heat_block(
-            ts,
-            state["roughness_length"],
-            rho,
-            calibration,
-            p.blending_height,
-            p.max_iterations,
-            datum_surface_temperature=state["datum_surface_temperature"],
-            initial_inverse_length=length,
-            blending_wind_speed=state["blending_wind_speed"] * member.wind_factor,
-        )
-        le = partition.clip_latent_heat(available - h, c.max_evaporative_fraction * available)
-        if c.daily_scaling == "reference_et_fraction":
-            et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
-            daily[m] = et_hourly / c.reference_et_hourly * c.reference_et_daily
-        else:
-            ef = partition.evaporative_fraction(le, available)
-            daily[m] = partition.et_daily_from_evaporative_fraction(
-                ef, np.maximum(state["net_radiation_daily"], 0.0), lam_daily
-            )
-    low, high = ensemble_percentiles(daily)
-    return {"et_daily_p10": low, "et_daily_p90": high}
+    method = get_method(ctx.method)
+    state = block_state(
+        ctx,
+        slice(r0, r1),
+        slice(c0, c1),
+        daily=False,
+        candidates_only=method.pass1_candidates_only,
+    )
+    return method.pass1_block(state, location, ctx), state["input_stats"]
 
 
 @dataclass(frozen=True)
 class Pass2Parameters:
-    """What pass 2 needs from pass 1: the anchor calibration or the fitted edges."""
+    """What pass 2 needs from pass 1: the variables to stack and the method's parameters."""
 
     variables: tuple[str, ...]
-    calibration: anchor_method.Calibration | None = None
-    cold: anchor_method.Anchor | None = None
-    hot: anchor_method.Anchor | None = None
-    explicit_cold: bool = False
-    explicit_hot: bool = False
-    blending_height: float = 200.0
-    max_iterations: int = 30
-    edges: edge_method.Edges | None = None
-    members: tuple[tuple[Member, anchor_method.Calibration], ...] = ()
-    stability_start: anchor_method.StabilityStart | None = None
+    method_params: Any = None
+    members: tuple = ()  # the method's ensemble members' parameters
 
 
 def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
@@ -314,27 +271,9 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
     ts = state["surface_temperature"]
     rn, g, available = state["net_radiation"], state["ground_heat_flux"], state["available_energy"]
 
+    method = get_method(ctx.method)
     inverse_length = np.zeros(ts.shape)
-    if p.edges is not None:
-        # H is what the edges leave of the available energy: (1 - EF) (Rn - G), unclipped here
-        ef_edges = edge_method.evaporative_fraction_block(
-            state["albedo"], state["datum_surface_temperature"], p.edges
-        )
-        h = np.where(valid, (1.0 - ef_edges) * available, np.nan)
-        converged = np.ones(ts.shape, dtype=bool)
-    else:
-        h, converged = anchor_method.sensible_heat_block(
-            np.where(valid, ts, np.nan),
-            state["roughness_length"],
-            state["air_density"],
-            p.calibration,
-            p.blending_height,
-            p.max_iterations,
-            datum_surface_temperature=state["datum_surface_temperature"],
-            inverse_length_out=inverse_length,
-            blending_wind_speed=state["blending_wind_speed"],
-            start=p.stability_start,
-        )
+    h, converged = method.sensible_heat_block(state, p.method_params, ctx.constants, inverse_length)
     le_raw = partition.latent_heat_residual(rn, g, h)
     # LE may exceed Rn - G only by max_evaporative_fraction (advection: H < 0); default 1
     ceiling = ctx.constants.max_evaporative_fraction * available
@@ -360,28 +299,15 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
     qa = qa | bit(clipped_low, QA.LATENT_HEAT_CLIPPED_AT_ZERO)
     qa |= bit(clipped_high, QA.LATENT_HEAT_CLIPPED_AT_AVAILABLE)
     qa |= bit(valid & ~converged, QA.STABILITY_NOT_CONVERGED)
-    anchor_bits = (
-        ()
-        if p.calibration is None
-        else (
-            (p.cold, p.explicit_cold, QA.COLD_ANCHOR, state["cold_candidate"]),
-            (p.hot, p.explicit_hot, QA.HOT_ANCHOR, state["hot_candidate"]),
-        )
-    )
-    for anchor, explicit, flag, candidates in anchor_bits:
-        if explicit:
-            if r0 <= anchor.row < r1 and c0 <= anchor.col < c1:
-                qa[anchor.row - r0, anchor.col - c0] |= np.uint16(flag)
-        else:
-            low, high = anchor.ts_range
-            datum = state["datum_surface_temperature"]
-            with np.errstate(invalid="ignore"):
-                qa |= bit(candidates & (datum >= low) & (datum < high), flag)
-
+    method_bits = method.qa_block(state, p.method_params, location)
+    if method_bits is not None:
+        qa |= method_bits
     c = ctx.constants
     ensemble = {}
     if p.members:
-        ensemble = ensemble_block(ctx, p, state, valid, lam, lam_daily, length=inverse_length)
+        ensemble = method.ensemble_block(
+            state, p.method_params, p.members, c, valid, lam, lam_daily, inverse_length
+        )
     if c.reference_et_hourly is not None and c.reference_et_hourly > 0:
         fraction = et_hourly / c.reference_et_hourly  # ET at overpass / hourly reference ET
     else:

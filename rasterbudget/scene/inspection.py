@@ -16,7 +16,6 @@ import rasterio
 from rasterio.transform import Affine
 
 from ..catalog.classes import ClassTable
-from ..errors import AnchorError
 from ..io.grid import (
     GDAL_OPTIONS,
     WEATHER_ROLES,
@@ -28,6 +27,7 @@ from ..io.grid import (
     read_window,
     target_grid,
 )
+from ..methods import get_method
 from ..recipe import Recipe, Scene, resolve_path, resolve_raster_path
 from ..surface import ClassLookups, land_cover_codes, surface_block
 from .blocks import BlockContext, check_input_values, input_stats, mask_pixels, remap_codes
@@ -168,16 +168,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
             f"      {cls.name:16s} {in_class.sum() * factor**2:>10d}  {outside:6.1%}  "
             f"{np.nanmedian(ts):7.2f} K"
         )
-    if scene.sensible_heat == "anchors":
-        for role in ("cold", "hot"):
-            n = int(state[f"{role}_candidate"].sum()) * factor**2
-            lines.append(f"  {role}-anchor candidates: about {n}")
-            if n < scene.anchors.min_candidates and getattr(scene.anchors, f"{role}_xy") is None:
-                raise AnchorError(
-                    f"scene {scene.id}: about {n} {role}-anchor candidate pixels (need "
-                    f"{scene.anchors.min_candidates}); see the per-class table above, lower the "
-                    f"NDVI threshold or give anchors.{role}_xy."
-                )
+    lines += get_method(scene.sensible_heat).inspect(scene, state, factor)
     megapixels = grid.width * grid.height / 1e6
     members = max(1, scene.uncertainty.members)
     seconds = SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.2 * (members - 1))

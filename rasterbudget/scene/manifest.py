@@ -13,7 +13,6 @@ from .. import __version__
 from ..io.grid import (
     Grid,
 )
-from ..methods import anchors as anchor_method
 from ..recipe import Scene
 
 CAUTION = (
@@ -65,17 +64,6 @@ def write_stac(
         scene.id, scene.acquired_utc, grid, raster_info, files, cog, dt.datetime.now(dt.UTC)
     )
     return write_stac_item(item, out_dir / f"{scene.id}.stac.json")
-
-
-def anchor_xy(grid: Grid, anchor: anchor_method.Anchor) -> dict:
-    x, y = _map_xy(grid, anchor.row + 0.5, anchor.col + 0.5)
-    return {"x": x, "y": y}
-
-
-def _map_xy(grid: Grid, row: float, col: float) -> tuple[float, float]:
-    """Map coordinates of a (fractional) pixel position on a north-up grid."""
-    t = grid.transform
-    return t.c + col * t.a, t.f + row * t.e
 
 
 def json_default(value):

@@ -8,7 +8,6 @@ file, temporary names) and computes the tile and class summaries from the same b
 
 from __future__ import annotations
 
-import dataclasses
 import datetime as dt
 import itertools
 import json
@@ -27,7 +26,6 @@ from ..errors import OutputError, RasterBudgetError
 from ..io.engine import effective_chunk_size, finish_all, release_free_memory, tree_reduce
 from ..io.grid import (
     GDAL_OPTIONS,
-    Grid,
     check_input,
     grid_from_settings,
     input_source,
@@ -46,14 +44,12 @@ from ..io.writers import (
     write_text_atomic,
 )
 from ..methods import anchors as anchor_method
-from ..methods import edges as edge_method
+from ..methods import get_method
+from ..methods.base import CalibrationContext
 from ..methods.ensemble import sample_members
-from ..physics import turbulence
-from ..physics.constants import SECONDS_PER_HOUR
 from ..recipe import Recipe, Scene, resolve_path, resolve_raster_path
 from ..surface import (
     ClassLookups,
-    perturbed_air,
 )
 from . import blocks
 from .blocks import (
@@ -67,7 +63,7 @@ from .blocks import (
     pass2_write_block,
 )
 from .constants import metric_pixel_size, scene_constants, with_weather_at_centre
-from .manifest import CAUTION, anchor_xy, json_default, sha256_of, versions, write_stac
+from .manifest import CAUTION, json_default, sha256_of, versions, write_stac
 from .summaries import (
     HISTOGRAM_RANGES,
     class_rows,
@@ -118,139 +114,9 @@ class SceneResult:
 # ----------------------------------------------------------------------------- the scene
 
 
-def _calibrate_anchors(
-    scene: Scene, grid: Grid, ctx: BlockContext, histogram, scene_gridded: dict
-) -> tuple:
-    """Choose (or read) both anchors and fit dT = a + b Ts; return pass-2 parameters and facts."""
-    import rasterio
-
-    s = scene.anchors
-    if scene.overpass.wind_speed_m_s is None:
-        raise RasterBudgetError(
-            f"scene {scene.id}: anchor calibration needs overpass.wind_speed_m_s; add it, or "
-            "set sensible_heat = 'edges', which needs no wind."
-        )
-    chosen = {}
-    explicit = {}
-    pixel_states: dict[str, dict] = {}
-    percentiles = {"cold": s.cold_percentile, "hot": s.hot_percentile}
-    for r, (role, xy) in enumerate((("cold", s.cold_xy), ("hot", s.hot_xy))):
-        explicit[role] = xy is not None
-        if xy is None:
-            chosen[role] = anchor_method.select_anchor(
-                anchor_method.dense_histogram(histogram[r]),
-                role,
-                percentiles[role],
-                s.percentile_band,
-                s.min_candidates,
-                grid.width,
-            )
-            continue
-        row, col = rasterio.transform.rowcol(grid.transform, *xy)
-        if not (0 <= row < grid.height and 0 <= col < grid.width):
-            raise RasterBudgetError(
-                f"scene {scene.id}: anchors.{role}_xy = {list(xy)} lies outside the scene "
-                f"grid {tuple(round(b) for b in grid.bounds)}; give map coordinates in "
-                f"{grid.crs.to_string()}."
-            )
-        state = block_state(ctx, slice(row, row + 1), slice(col, col + 1))
-        pixel_states[role] = state
-        chosen[role] = anchor_method.anchor_from_pixel(state, role, row, col, (0, 0))
-    u_blend = anchor_method.wind_at_blending_height(
-        scene.overpass.wind_speed_m_s,
-        scene.overpass.wind_height_m,
-        s.station_roughness_m,
-        s.blending_height_m,
-    )
-    k_ref = scene.reference_et.cold_anchor_fraction
-    gridded_wind = "wind_speed_m_s" in scene_gridded
-
-    def cold_condition(cold: anchor_method.Anchor, factor: float = 1.0) -> float:
-        """The cold anchor's imposed EF: given, or k ETr(hour) expressed as a flux over Rn - G."""
-        if k_ref is None:
-            return min(factor * s.cold_evaporative_fraction, 1.2)
-        lam = float(turbulence.latent_heat_of_vaporization(cold.surface_temperature))
-        cold_le = factor * k_ref * ctx.constants.reference_et_hourly * lam / SECONDS_PER_HOUR
-        return min(cold_le / cold.available_energy, 1.2)
-
-    cold_fraction = cold_condition(chosen["cold"])
-    calibration = anchor_method.calibrate(
-        chosen["cold"],
-        chosen["hot"],
-        u_blend,
-        s.blending_height_m,
-        cold_fraction,
-        s.hot_evaporative_fraction,
-        s.max_iterations,
-        s.tolerance_k,
-        gridded_wind=gridded_wind,
-    )
-    params = {
-        "calibration": calibration,
-        "cold": chosen["cold"],
-        "hot": chosen["hot"],
-        "explicit_cold": explicit["cold"],
-        "explicit_hot": explicit["hot"],
-        "blending_height": s.blending_height_m,
-        "max_iterations": s.max_iterations,
-        # where each pixel's stability iteration starts: the anchors' mean air density
-        "stability_start": anchor_method.stability_start(
-            calibration,
-            ctx.lookups.roughness_length,
-            0.5 * (chosen["cold"].air_density + chosen["hot"].air_density),
-            s.blending_height_m,
-        ),
-    }
-    facts = {
-        "anchors": {k: v.as_dict() | anchor_xy(grid, v) for k, v in chosen.items()},
-        "calibration": calibration.as_dict() | {"cold_evaporative_fraction": cold_fraction},
-    }
-    # ---- ensemble members: the same pass-1 histograms, perturbed choices and weather
-    members = []
-    dense = [
-        anchor_method.dense_histogram(histogram[r], len(ctx.member_air_offsets)) for r in range(2)
-    ]
-    for m, member in enumerate(sample_members(scene.uncertainty)):
-        anchors_m = {}
-        for r, role in enumerate(anchor_method.ROLES):
-            if explicit[role]:
-                st = pixel_states[role]
-                available, rho = perturbed_air(ctx.constants, st, member.air_temperature_offset)
-                anchors_m[role] = dataclasses.replace(
-                    chosen[role],
-                    available_energy=float(available[0, 0]),
-                    air_density=float(rho[0, 0]),
-                )
-            else:
-                pct = member.cold_percentile if role == "cold" else member.hot_percentile
-                anchors_m[role] = anchor_method.select_anchor(
-                    anchor_method.member_histogram(dense[r], m),
-                    role,
-                    pct,
-                    s.percentile_band,
-                    s.min_candidates,
-                    grid.width,
-                )
-        fraction_m = cold_condition(anchors_m["cold"], member.cold_anchor_factor)
-        calibration_m = anchor_method.calibrate(
-            anchors_m["cold"],
-            anchors_m["hot"],
-            u_blend * member.wind_factor,
-            s.blending_height_m,
-            fraction_m,
-            s.hot_evaporative_fraction,
-            s.max_iterations,
-            s.tolerance_k,
-            gridded_wind=gridded_wind,
-            wind_factor=member.wind_factor,
-        )
-        members.append((member, calibration_m))
-    if members:
-        params["members"] = tuple(members)
-        facts["ensemble"] = [
-            m.as_dict() | {"a": c.a, "b": c.b, "converged": c.converged} for m, c in members
-        ]
-    return params, facts
+def _pixel_state(ctx: BlockContext, row: int, col: int) -> dict:
+    """The surface state of one pixel (a given anchor's)."""
+    return block_state(ctx, slice(row, row + 1), slice(col, col + 1))
 
 
 def run_scene(
@@ -296,11 +162,6 @@ def run_scene(
         if scene.grid is not None:
             grid = grid_from_settings(scene.grid)
         described = {role: check_input(path, role, grid) for role, path in paths.items()}
-    if scene.uncertainty.members and scene.sensible_heat != "anchors":
-        raise RasterBudgetError(
-            f"scene {scene.id}: uncertainty.members is implemented for sensible_heat = "
-            "'anchors' only; remove [scene.uncertainty] or use the anchors method."
-        )
     # Gridded weather: scene-wide scalars (reference ET, the sun check, ...) take each raster's
     # value at the scene centre; pixels use their own values (surface_block, anchors, pass 2).
     gridded_keys = scene.overpass.gridded()
@@ -366,33 +227,28 @@ def run_scene(
         partials = [
             dask.delayed(blocks.pass1_block)(ctx_task, loc) for row in locations for loc in row
         ]
-        combine = (
-            edge_method.combine_histograms
-            if scene.sensible_heat == "edges"
-            else anchor_method.combine_histograms
-        )
+        method = get_method(scene.sensible_heat)
         total = tree_reduce(
-            partials, lambda a, b: (combine(a[0], b[0]), merge_input_stats(a[1], b[1]))
+            partials, lambda a, b: (method.combine(a[0], b[0]), merge_input_stats(a[1], b[1]))
         )
         with TaskProgress(f"{scene.id} pass 1", settings.progress):
-            ((histogram, input_stats),) = dask.compute(total)
+            ((reduced, input_stats),) = dask.compute(total)
         value_summary = check_input_values(input_stats, sources)
-        if scene.sensible_heat == "edges":
-            e = scene.edges
-            fitted = edge_method.fit_edges(
-                histogram,
-                e.dry_percentile,
-                e.wet_percentile,
-                e.min_pixels_per_bin,
-                e.min_bins,
-                e.wet_edge,
-            )
-            method_params = {"edges": fitted}
-            method_facts = {"edges": fitted.as_dict()}
-        else:
-            method_params, method_facts = _calibrate_anchors(
-                scene, grid, ctx, histogram, gridded_keys
-            )
+        calibrated = method.calibrate(
+            reduced,
+            CalibrationContext(
+                scene=scene,
+                settings=method.settings(scene),
+                grid=grid,
+                constants=constants,
+                lookups=lookups,
+                member_air_offsets=ctx.member_air_offsets,
+                gridded_weather=frozenset(gridded_keys),
+                blending_wind_speed=ctx.blending_wind_speed,
+                pixel_state=partial(_pixel_state, ctx),
+            ),
+        )
+        method_facts = calibrated.facts
         timings["pass1_s"] = time.perf_counter() - t0
 
         # ---------------- pass 2: fluxes, GeoTIFFs and summaries in one compute
@@ -402,10 +258,12 @@ def run_scene(
         )
         if constants.reference_et_hourly is not None:
             written.append("reference_et_fraction")
-        if method_params.get("members"):
+        if calibrated.members:
             written += list(ENSEMBLE_OUTPUTS)
         variables = (*written, QA_OUTPUT, "land_cover_code")
-        params = Pass2Parameters(variables=variables, **method_params)
+        params = Pass2Parameters(
+            variables=variables, method_params=calibrated.params, members=calibrated.members
+        )
         params_task = dask.delayed(params)
         descriptions = {
             **FLUX_OUTPUTS,
@@ -593,15 +451,7 @@ def run_scene(
             out_dir / "quicklook.png",
             f"{scene.id}  {scene.acquired_utc:%Y-%m-%d %H:%M} UTC",
         )
-    if scene.sensible_heat == "edges":
-        picture = out_dir / "edges.png"
-        edge_method.scatter_picture(
-            histogram,
-            method_params["edges"],
-            picture.with_name(picture.name + ".partial"),
-            f"{scene.id}: surface temperature against albedo",
-        )
-        outputs["edges.png"] = picture.with_name(picture.name + ".partial").replace(picture)
+    outputs.update(method.extra_outputs(reduced, calibrated.params, out_dir, scene.id))
     timings["summaries_s"] = time.perf_counter() - t0
     if settings.stac:
         t0 = time.perf_counter()

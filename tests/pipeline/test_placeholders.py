@@ -26,7 +26,11 @@ def _recipe(tmp_path, **scene):
                 "surface_temperature": {"path": "s/lst_{doy}.tif", "units": "C"},
                 "land_cover": "s/{id}_lc.tif",
             },
-            "overpass": {"station_elevation_m": 1560.0, "air_temperature_c": 31.0},
+            "overpass": {
+                "station_elevation_m": 1560.0,
+                "air_temperature_c": 31.0,
+                "wind_speed_m_s": 3.0,
+            },
         },
         "scene": [{"id": "k_0724", "acquired_utc": WHEN, **scene}],
     }
