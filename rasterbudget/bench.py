@@ -149,8 +149,9 @@ def floor_phase(recipe_path: Path, out_dir: Path, chunk: int, passes: int = 1) -
     import rasterio
     from rasterio.windows import Window
 
+    from .catalog.variables import FLUX_OUTPUTS, QA_OUTPUT
     from .io.grid import GDAL_OPTIONS, Grid
-    from .io.writers import FLUX_OUTPUTS, QA_OUTPUT, AtomicRaster, block_size_for
+    from .io.writers import AtomicRaster, block_size_for
 
     inputs = {role: recipe_path.parent / f"{role}.tif" for role in _SOURCES.values()}
     with rasterio.open(inputs["albedo"]) as src:

@@ -15,11 +15,11 @@ from rasterio.crs import CRS
 from rasterio.warp import transform as warp_transform
 
 from rasterbudget.catalog.classes import load_class_table
+from rasterbudget.catalog.variables import FLUX_OUTPUTS, REFERENCE_OUTPUTS
 from rasterbudget.cli import main
 from rasterbudget.errors import InputRasterError, OutputError
 from rasterbudget.io import writers as outputs
 from rasterbudget.io.paths import is_remote
-from rasterbudget.io.writers import FLUX_OUTPUTS, REFERENCE_OUTPUTS
 from rasterbudget.recipe import parse_recipe, resolve_raster_path
 from rasterbudget.scene import blocks
 from rasterbudget.scene import run as pipeline

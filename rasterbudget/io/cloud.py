@@ -143,6 +143,7 @@ class AtomicZarr:
         """``variables``: name -> (dtype, units, long_name); ``attributes`` go on the group."""
         self.path = Path(path)
         self.partial = self.path.with_name(self.path.name + PARTIAL_SUFFIX)
+        self.committed = False
         shutil.rmtree(self.partial, ignore_errors=True)
         try:
             self.arrays = self._create(grid, chunk, variables, attributes)
@@ -225,6 +226,7 @@ class AtomicZarr:
             shutil.rmtree(old, ignore_errors=True)
         else:
             os.replace(self.partial, self.path)
+        self.committed = True
         return self.path
 
     def abort(self) -> None:

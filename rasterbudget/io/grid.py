@@ -22,22 +22,12 @@ from rasterio.vrt import WarpedVRT
 from rasterio.warp import transform_bounds
 from rasterio.windows import Window
 
+from ..catalog.inputs import CATEGORICAL, WEATHER_ROLES
 from ..errors import InputRasterError
 from .paths import is_remote
 
 #: GDAL settings for every read and write (block cache bounded; see DEVELOPERS.md).
 GDAL_OPTIONS = {"GDAL_CACHEMAX": 64, "GDAL_NUM_THREADS": 1}
-
-#: Overpass weather keys that may be rasters (gridded weather), read like any input.
-WEATHER_ROLES = (
-    "air_temperature_c",
-    "relative_humidity_pct",
-    "wind_speed_m_s",
-    "shortwave_in_w_m2",
-)
-
-#: Inputs holding class codes are resampled with nearest neighbour; all others bilinearly.
-CATEGORICAL = {"land_cover", "cloud_mask"}
 
 
 @dataclass(frozen=True)

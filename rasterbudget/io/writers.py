@@ -17,31 +17,6 @@ from rasterio.windows import Window
 
 from .grid import Grid
 
-#: Float outputs: file stem -> (units, description). Names are the trade's.
-FLUX_OUTPUTS: dict[str, tuple[str, str]] = {
-    "net_radiation": ("W m-2", "net radiation Rn at overpass"),
-    "ground_heat_flux": ("W m-2", "ground heat flux G at overpass"),
-    "sensible_heat_flux": ("W m-2", "sensible heat flux H at overpass"),
-    "latent_heat_flux": ("W m-2", "latent heat flux LE = Rn - G - H at overpass"),
-    "evaporative_fraction": ("1", "evaporative fraction LE / (Rn - G)"),
-    "et_hourly": ("mm h-1", "actual evapotranspiration rate at overpass"),
-    "et_daily": ("mm d-1", "daily actual evapotranspiration (scaling in the manifest)"),
-}
-COMPONENT_OUTPUTS: dict[str, tuple[str, str]] = {
-    "shortwave_in": ("W m-2", "incoming shortwave radiation at overpass"),
-    "longwave_in": ("W m-2", "incoming longwave radiation at overpass"),
-    "longwave_out": ("W m-2", "outgoing longwave radiation at overpass"),
-    "net_radiation_daily": ("MJ m-2 d-1", "FAO-56 daily net radiation"),
-}
-REFERENCE_OUTPUTS: dict[str, tuple[str, str]] = {
-    "reference_et_fraction": ("1", "ET at overpass / hourly standardized reference ET"),
-}
-ENSEMBLE_OUTPUTS: dict[str, tuple[str, str]] = {
-    "et_daily_p10": ("mm d-1", "daily ET, 10th percentile of the uncertainty ensemble"),
-    "et_daily_p90": ("mm d-1", "daily ET, 90th percentile of the uncertainty ensemble"),
-}
-QA_OUTPUT = "qa_flags"
-
 PARTIAL_SUFFIX = ".partial"
 
 

@@ -19,7 +19,6 @@ import dataclasses
 from dataclasses import asdict, dataclass
 
 import numpy as np
-from numpy.typing import ArrayLike
 from pydantic import Field
 
 from ..catalog.qa import QA
@@ -295,21 +294,6 @@ def anchor_from_pixel(
         if "blending_wind_speed" in state
         else float("nan"),
     )
-
-
-def wind_at_blending_height(
-    wind_speed: ArrayLike, height: float, station_roughness: float, blending_height: float
-) -> np.ndarray | float:
-    """Wind speed at the blending height from a station reading, neutral log profile. [m s-1]
-
-    u*_station = k u_z / ln(z / z0m_station); u_b = u*_station ln(z_b / z0m_station) / k
-    (logarithmic wind profile; Brutsaert 2005, eq. 2.41 form - from memory). The blending height is
-    taken high enough that wind there does not depend on the surface below (Bastiaanssen et al.
-    1998 use 100-200 m).
-    """
-    factor = np.log(blending_height / station_roughness) / np.log(height / station_roughness)
-    result = np.asarray(wind_speed, dtype=np.float64) * factor
-    return float(result) if result.ndim == 0 else result
 
 
 def _resistance(

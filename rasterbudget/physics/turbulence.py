@@ -43,6 +43,7 @@ __all__ = [
     "vapour_pressure_from_relative_humidity",
     "vapour_pressure_from_rh_extremes",
     "wind_speed_at_2m",
+    "wind_speed_at_blending_height",
 ]
 
 
@@ -576,3 +577,18 @@ def sensible_heat_flux(
     with :math:`c_p = 1004` J kg-1 K-1.
     """
     return air_density * SPECIFIC_HEAT_AIR * temperature_difference / aerodynamic_resistance
+
+
+def wind_speed_at_blending_height(
+    wind_speed: ArrayLike, height: float, station_roughness: float, blending_height: float
+) -> np.ndarray | float:
+    """Wind speed at the blending height from a station reading, neutral log profile. [m s-1]
+
+    u*_station = k u_z / ln(z / z0m_station); u_b = u*_station ln(z_b / z0m_station) / k
+    (logarithmic wind profile; Brutsaert 2005, eq. 2.41 form - from memory). The blending height is
+    taken high enough that wind there does not depend on the surface below (Bastiaanssen et al.
+    1998 use 100-200 m).
+    """
+    factor = np.log(blending_height / station_roughness) / np.log(height / station_roughness)
+    result = np.asarray(wind_speed, dtype=np.float64) * factor
+    return float(result) if result.ndim == 0 else result

@@ -11,18 +11,15 @@ from typing import Any
 
 import numpy as np
 
+from ..catalog.inputs import WEATHER_ROLES
 from ..catalog.qa import QA
+from ..catalog.variables import QA_OUTPUT
 from ..errors import InputValueError
 from ..io.grid import (
-    WEATHER_ROLES,
     Grid,
     InputSource,
     read_window,
 )
-from ..io.writers import (
-    QA_OUTPUT,
-)
-from ..methods import anchors as anchor_method
 from ..methods import get_method
 from ..physics import partition, turbulence
 from ..physics.constants import SECONDS_PER_HOUR
@@ -39,7 +36,6 @@ from .geometry import pixel_geometry
 from .summaries import (
     HISTOGRAM_RANGES,
     class_histograms,
-    tile_statistics,
 )
 
 
@@ -130,7 +126,7 @@ def block_state(
     # wind at the blending height, per pixel from a wind grid or the station's one value
     if "wind_speed_m_s" in data and ctx.wind_profile is not None:
         height, station_roughness, blending_height = ctx.wind_profile
-        state["blending_wind_speed"] = anchor_method.wind_at_blending_height(
+        state["blending_wind_speed"] = turbulence.wind_speed_at_blending_height(
             data["wind_speed_m_s"], height, station_roughness, blending_height
         )
     else:
@@ -337,6 +333,7 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
 
 
 def combine_block_summaries(a, b):
+    """Two blocks' summaries (:func:`block_summary`) as one."""
     hists = dict(a[0])
     for key, hist in b[0].items():
         hists[key] = hist.merge(hists.get(key))
@@ -344,7 +341,7 @@ def combine_block_summaries(a, b):
     moments[..., :3] += b[1][..., :3]
     moments[..., 3] = np.minimum(a[1][..., 3], b[1][..., 3])
     moments[..., 4] = np.maximum(a[1][..., 4], b[1][..., 4])
-    return hists, moments, a[2] + b[2], {**a[3], **b[3]}, {**a[4], **b[4]}
+    return hists, moments, a[2] + b[2], {**a[3], **b[3]}
 
 
 def _decimated(block: np.ndarray, index: list[int], step: int, r0: int, c0: int) -> np.ndarray:
@@ -354,49 +351,25 @@ def _decimated(block: np.ndarray, index: list[int], step: int, r0: int, c0: int)
 
 def block_summary(
     block: np.ndarray,
+    location,
     variables: tuple[str, ...],
     class_codes: list[int],
-    thumbnail: tuple[list[int], int, int, int] | None = None,
-    tiles: tuple[list[int], int, int, int] | None = None,
+    thumbnail: tuple[list[int], int] | None = None,
 ):
     """Per-class histograms and moments of one pass-2 block, its pixels per QA bit and, given
-    ``thumbnail = (variable indices, step, r0, c0)``, its quick-look pixels keyed by (r0, c0);
-    given ``tiles = (variable indices, tile, r0, c0)`` with tiles that lie inside blocks, the
-    statistics of its tiles keyed by (tile row, tile col).
+    ``thumbnail = (variable indices, step)``, its quick-look pixels keyed by (r0, c0).
 
-    Quick-look pixels and tile statistics come from this task rather than tasks of their own: as
-    separate leaf tasks dask ran them late and held the pass-2 blocks until then (+350 MB at
-    1024 blocks for the quick-look; the peak grew with the block count).
+    Quick-look pixels come from this task rather than tasks of their own: as separate leaf tasks
+    dask ran them late and held the pass-2 blocks until then (+350 MB at 1024 blocks; the peak
+    grew with the block count).
     """
+    (r0, _), (c0, _) = location
     values = {name: block[variables.index(name)] for name in HISTOGRAM_RANGES if name in variables}
     codes = block[variables.index("land_cover_code")].astype(np.intp)
     qa = block[variables.index(QA_OUTPUT)].astype(np.uint16)
     qa_counts = np.array([np.count_nonzero(qa & np.uint16(b)) for b in QA], dtype=np.int64)
     thumbs = {}
     if thumbnail is not None:
-        index, step, r0, c0 = thumbnail
+        index, step = thumbnail
         thumbs[r0, c0] = _decimated(block, index, step, r0, c0)
-    stats = {}
-    if tiles is not None:
-        index, tile, r0, c0 = tiles
-        summarised = block[index]
-        for tr in range(0, block.shape[1], tile):
-            for tc in range(0, block.shape[2], tile):
-                part = summarised[:, tr : tr + tile, tc : tc + tile]
-                stats[(r0 + tr) // tile, (c0 + tc) // tile] = tile_statistics(part)
-    return (*class_histograms(values, codes, class_codes), qa_counts, thumbs, stats)
-
-
-def pass2_write_block(ctx: BlockContext, p: Pass2Parameters, location, summary_args, targets):
-    """Pass 2 of one block, its windows written to every target, and its summary returned.
-
-    ``targets``: (variable index, data type, target) with targets that take
-    ``target[rows, cols] = values`` (GeoTIFF writers, Zarr arrays); ``summary_args``: the
-    arguments of :func:`block_summary` after the block.
-    """
-    block = pass2_block(ctx, p, location)
-    (r0, r1), (c0, c1) = location
-    window = (slice(r0, r1), slice(c0, c1))
-    for k, dtype, target in targets:
-        target[window] = block[k].astype(dtype, copy=False)  # float32 outputs: no copy
-    return block_summary(block, *summary_args)
+    return (*class_histograms(values, codes, class_codes), qa_counts, thumbs)

@@ -16,9 +16,9 @@ import rasterio
 from rasterio.transform import Affine
 
 from ..catalog.classes import ClassTable
+from ..catalog.inputs import WEATHER_ROLES, target_role
 from ..io.grid import (
     GDAL_OPTIONS,
-    WEATHER_ROLES,
     Grid,
     check_input,
     grid_from_settings,
@@ -28,12 +28,12 @@ from ..io.grid import (
     target_grid,
 )
 from ..methods import get_method
-from ..recipe import Recipe, Scene, resolve_path, resolve_raster_path
+from ..recipe import Recipe, Scene, resolve_path
 from ..surface import ClassLookups, land_cover_codes, surface_block
 from .blocks import BlockContext, check_input_values, input_stats, mask_pixels, remap_codes
 from .constants import scene_constants, with_weather_at_centre
 from .geometry import pixel_lonlat
-from .run import OPTIONAL_INPUTS, REQUIRED_INPUTS
+from .inputs import input_paths
 
 SAMPLE_SIDE = 1024
 
@@ -56,17 +56,9 @@ def sample_grid(grid: Grid) -> tuple[Grid, int]:
 def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: int) -> list[str]:
     """Lines describing one scene's inputs; raises the run's own error where a run would fail."""
     lines = [f"scene {scene.id}  acquired {scene.acquired_utc.isoformat()}"]
-    paths, specs = {}, {}
-    for role in REQUIRED_INPUTS + OPTIONAL_INPUTS:
-        spec = scene.inputs.spec(role)
-        if spec is not None:
-            paths[role], specs[role] = resolve_raster_path(recipe, spec.path), spec
-    if scene.inputs.cloud_mask is not None:
-        paths["cloud_mask"] = resolve_raster_path(recipe, scene.inputs.cloud_mask.path)
-    for key, value in scene.overpass.gridded().items():
-        paths[key] = resolve_raster_path(recipe, value)
+    paths, specs = input_paths(recipe, scene)
     with rasterio.Env(**GDAL_OPTIONS):
-        grid = target_grid(paths["albedo"])
+        grid = target_grid(paths[target_role()])
         if scene.grid is not None:
             grid = grid_from_settings(scene.grid)
         left, bottom, right, top = grid.bounds

@@ -6,17 +6,12 @@ from pathlib import Path
 
 import numpy as np
 
-from ..io.writers import FLUX_OUTPUTS, PARTIAL_SUFFIX
+from ..catalog.variables import VARIABLES, panel_variables
+from ..io.writers import PARTIAL_SUFFIX
 
 #: Panels: (output stem, colour map, fixed range or None for the 2-98 % range of the data).
-PANELS = (
-    ("net_radiation", "inferno", None),
-    ("ground_heat_flux", "copper", None),
-    ("sensible_heat_flux", "OrRd", None),
-    ("latent_heat_flux", "PuBuGn", None),
-    ("evaporative_fraction", "BrBG", (0.0, 1.0)),
-    ("et_daily", "YlGnBu", None),
-)
+#: (variable, colour map, fixed colour range or None) of each panel, from the catalogue
+PANELS = tuple((n, *VARIABLES[n].panel) for n in panel_variables())
 
 MAX_PIXELS = 800  # longest side of each panel
 
@@ -50,7 +45,7 @@ def write_quicklook(panels: dict[str, np.ndarray], path: Path, title: str) -> Pa
         else:
             vmin, vmax = 0.0, 1.0
         image = ax.imshow(data, cmap=cmap, vmin=vmin, vmax=vmax, interpolation="nearest")
-        units, _ = FLUX_OUTPUTS[name]
+        units = VARIABLES[name].units
         ax.set_title(name.replace("_", " "))
         ax.set_xticks([])
         ax.set_yticks([])

@@ -13,21 +13,15 @@ import json
 
 import numpy as np
 
+from ..catalog.variables import VARIABLES
 from ..methods.histograms import RangeHistogram, range_histogram
 
 TILE_STATS = ("mean", "std", "min", "p10", "p50", "p90", "max")
 
-#: Histogram range and bin width per variable for per-class percentiles: (low, high, step).
+#: Histogram range and bin width per variable for per-class percentiles: (low, high, step),
+#: from the catalogue of output variables.
 HISTOGRAM_RANGES: dict[str, tuple[float, float, float]] = {
-    "net_radiation": (-300.0, 1200.0, 0.5),
-    "ground_heat_flux": (-300.0, 700.0, 0.5),
-    "sensible_heat_flux": (-400.0, 1200.0, 0.5),
-    "latent_heat_flux": (0.0, 1200.0, 0.5),
-    "evaporative_fraction": (0.0, 1.0, 0.001),
-    "et_hourly": (0.0, 2.0, 0.001),
-    "et_daily": (0.0, 20.0, 0.01),
-    "et_daily_p10": (0.0, 20.0, 0.01),
-    "et_daily_p90": (0.0, 20.0, 0.01),
+    n: v.histogram for n, v in VARIABLES.items() if v.histogram is not None
 }
 
 

@@ -93,7 +93,7 @@ def test_calibration_reproduces_the_anchor_conditions(wind):
     """H at each anchor, recomputed per pixel, is (1 - EF)(Rn - G) (Bastiaanssen et al. 1998)."""
     cold = _anchor("cold", 296.0, 600.0, 0.1)
     hot = _anchor("hot", 325.0, 350.0, 0.005)
-    u_blend = anchors.wind_at_blending_height(wind, 2.0, 0.0148, 200.0)
+    u_blend = turbulence.wind_speed_at_blending_height(wind, 2.0, 0.0148, 200.0)
     cal = anchors.calibrate(cold, hot, u_blend, 200.0, 0.95, 0.0, max_iterations=50, tolerance=1e-6)
     assert cal.converged
     ts = np.array([296.0, 325.0])
@@ -119,8 +119,8 @@ def test_calibration_reproduces_the_anchor_conditions(wind):
 
 def test_wind_at_blending_height_is_a_log_profile():
     # at the measurement height itself the wind is unchanged
-    assert anchors.wind_at_blending_height(3.0, 2.0, 0.0148, 2.0) == pytest.approx(3.0)
-    assert anchors.wind_at_blending_height(3.0, 2.0, 0.0148, 200.0) == pytest.approx(
+    assert turbulence.wind_speed_at_blending_height(3.0, 2.0, 0.0148, 2.0) == pytest.approx(3.0)
+    assert turbulence.wind_speed_at_blending_height(3.0, 2.0, 0.0148, 200.0) == pytest.approx(
         3.0 * np.log(200 / 0.0148) / np.log(2 / 0.0148)
     )
 

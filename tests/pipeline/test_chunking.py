@@ -8,8 +8,8 @@ import numpy as np
 import rasterio
 from click.testing import CliRunner
 
+from rasterbudget.catalog.variables import FLUX_OUTPUTS
 from rasterbudget.cli import main
-from rasterbudget.io.writers import FLUX_OUTPUTS
 from tests.conftest import DEMO_RECIPE
 
 

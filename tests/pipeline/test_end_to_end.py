@@ -10,7 +10,7 @@ import pytest
 import rasterio
 
 from rasterbudget.catalog.qa import QA
-from rasterbudget.io.writers import FLUX_OUTPUTS
+from rasterbudget.catalog.variables import FLUX_OUTPUTS
 
 SCENES = ("kessendry_20260614", "kessendry_20260823")
 EXPECTED_FILES = [f"{n}.tif" for n in FLUX_OUTPUTS] + [

@@ -100,7 +100,7 @@ def latlon(shape) -> tuple[np.ndarray, np.ndarray]:
 
 def blending_wind(station_wind: float) -> float:
     """Wind at the blending height from a 2 m station reading, with the pipeline's defaults."""
-    return anchors.wind_at_blending_height(
+    return turbulence.wind_speed_at_blending_height(
         station_wind, WIND_HEIGHT, STATION_ROUGHNESS, BLENDING_HEIGHT
     )
 

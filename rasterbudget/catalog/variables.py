@@ -1,0 +1,158 @@
+"""The catalogue of output variables: one row each, everything the package says about it.
+
+A row gives the file stem, units, description and data type of an output raster, the histogram
+that makes its exact per-class and per-tile percentiles (range and bin width), and its panel in
+the quick-look picture. Writers, summaries, the quick-look and the Zarr store all read it here;
+a new output variable is one row (and the line of the per-block code that computes it).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from dataclasses import dataclass
+
+__all__ = [
+    "QA_OUTPUT",
+    "VARIABLES",
+    "Variable",
+    "histogram_variables",
+    "panel_variables",
+    "scene_outputs",
+]
+
+
+@dataclass(frozen=True)
+class Variable:
+    """One output variable."""
+
+    name: str  # file stem and band name
+    units: str
+    description: str
+    group: str  # "flux", "component", "reference", "ensemble", "qa", "internal"
+    dtype: str = "float32"
+    #: exact summaries: histogram range and bin width (low, high, step), or None
+    histogram: tuple[float, float, float] | None = None
+    #: quick-look panel: (matplotlib colour map, fixed (vmin, vmax) or None), or None
+    panel: tuple[str, tuple[float, float] | None] | None = None
+
+
+_ROWS = (
+    Variable(
+        "net_radiation",
+        "W m-2",
+        "net radiation Rn at overpass",
+        "flux",
+        histogram=(-300.0, 1200.0, 0.5),
+        panel=("inferno", None),
+    ),
+    Variable(
+        "ground_heat_flux",
+        "W m-2",
+        "ground heat flux G at overpass",
+        "flux",
+        histogram=(-300.0, 700.0, 0.5),
+        panel=("copper", None),
+    ),
+    Variable(
+        "sensible_heat_flux",
+        "W m-2",
+        "sensible heat flux H at overpass",
+        "flux",
+        histogram=(-400.0, 1200.0, 0.5),
+        panel=("OrRd", None),
+    ),
+    Variable(
+        "latent_heat_flux",
+        "W m-2",
+        "latent heat flux LE = Rn - G - H at overpass",
+        "flux",
+        histogram=(0.0, 1200.0, 0.5),
+        panel=("PuBuGn", None),
+    ),
+    Variable(
+        "evaporative_fraction",
+        "1",
+        "evaporative fraction LE / (Rn - G)",
+        "flux",
+        histogram=(0.0, 1.0, 0.001),
+        panel=("BrBG", (0.0, 1.0)),
+    ),
+    Variable(
+        "et_hourly",
+        "mm h-1",
+        "actual evapotranspiration rate at overpass",
+        "flux",
+        histogram=(0.0, 2.0, 0.001),
+    ),
+    Variable(
+        "et_daily",
+        "mm d-1",
+        "daily actual evapotranspiration (scaling in the manifest)",
+        "flux",
+        histogram=(0.0, 20.0, 0.01),
+        panel=("YlGnBu", None),
+    ),
+    Variable("shortwave_in", "W m-2", "incoming shortwave radiation at overpass", "component"),
+    Variable("longwave_in", "W m-2", "incoming longwave radiation at overpass", "component"),
+    Variable("longwave_out", "W m-2", "outgoing longwave radiation at overpass", "component"),
+    Variable("net_radiation_daily", "MJ m-2 d-1", "FAO-56 daily net radiation", "component"),
+    Variable(
+        "reference_et_fraction",
+        "1",
+        "ET at overpass / hourly standardized reference ET",
+        "reference",
+    ),
+    Variable(
+        "et_daily_p10",
+        "mm d-1",
+        "daily ET, 10th percentile of the uncertainty ensemble",
+        "ensemble",
+        histogram=(0.0, 20.0, 0.01),
+    ),
+    Variable(
+        "et_daily_p90",
+        "mm d-1",
+        "daily ET, 90th percentile of the uncertainty ensemble",
+        "ensemble",
+        histogram=(0.0, 20.0, 0.01),
+    ),
+    Variable("qa_flags", "bitmask", "QA flags, bits in the README", "qa", dtype="uint16"),
+    # carried through pass 2 for the per-class summaries, never written
+    Variable("land_cover_code", "1", "land-cover class code", "internal"),
+)
+
+VARIABLES: dict[str, Variable] = {v.name: v for v in _ROWS}
+"""Every output variable by name, in the order the package writes and summarises them."""
+
+QA_OUTPUT = "qa_flags"
+
+
+def _of_group(*groups: str) -> dict[str, Variable]:
+    return {n: v for n, v in VARIABLES.items() if v.group in groups}
+
+
+def scene_outputs(components: bool, reference: bool, ensemble: bool) -> tuple[str, ...]:
+    """The float rasters a scene run writes, in order: the fluxes, then what was asked for."""
+    groups = ["flux"]
+    groups += ["component"] if components else []
+    groups += ["reference"] if reference else []
+    groups += ["ensemble"] if ensemble else []
+    return tuple(_of_group(*groups))
+
+
+def histogram_variables(names: Iterable[str]) -> list[str]:
+    """Those of ``names`` with summary histograms, in catalogue order."""
+    chosen = set(names)
+    return [n for n, v in VARIABLES.items() if v.histogram is not None and n in chosen]
+
+
+def panel_variables() -> list[str]:
+    """The quick-look panels, in catalogue order."""
+    return [n for n, v in VARIABLES.items() if v.panel is not None]
+
+
+#: file stem -> (units, description) of each group, for code that lists outputs by group
+FLUX_OUTPUTS = {n: (v.units, v.description) for n, v in _of_group("flux").items()}
+COMPONENT_OUTPUTS = {n: (v.units, v.description) for n, v in _of_group("component").items()}
+REFERENCE_OUTPUTS = {n: (v.units, v.description) for n, v in _of_group("reference").items()}
+ENSEMBLE_OUTPUTS = {n: (v.units, v.description) for n, v in _of_group("ensemble").items()}
