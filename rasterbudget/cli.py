@@ -158,10 +158,10 @@ def _run(
         zarr=parsed.run.zarr,
         compression=parsed.run.compression,
     )
-    from .batch import run_batch
     from .methods import get_method
+    from .workflow import run_recipe
 
-    def report(outcome) -> None:
+    def scene_line(outcome) -> None:
         if quiet and outcome.status != "failed":
             return
         if outcome.status == "failed":
@@ -176,43 +176,27 @@ def _run(
             f"{settings.out_dir / outcome.scene_id}  ({how})"
         )
 
-    outcomes = run_batch(parsed, table, settings, report, force=force)
-    failed = [o for o in outcomes if o.status == "failed"]
-    zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
-    if parsed.season:
-        from .season.totals import run_season
-
-        for season in parsed.season:
-            done = run_season(parsed, season, settings)
-            if not quiet:
-                click.echo(
-                    f"{season.id}: season {season.start} to {season.end} from "
-                    f"{len(done['scenes'])} scenes, mean {done['mean_et_season_mm']:.0f} mm "
-                    f"(reference ET {done['reference_et_total_mm']:.0f} mm) -> "
-                    f"{settings.out_dir / season.id}"
-                )
-    if parsed.zones is not None:
-        from .season.zones import run_zones
-
-        zone_targets += [(s.id, "et_season") for s in parsed.season]
-        for path in run_zones(parsed, settings, zone_targets):
-            if not quiet:
-                click.echo(f"zones: {path}")
-    if settings.quicklook:
-        from .report import write_report
-
-        report_path = write_report(
-            settings.out_dir,
-            [o.scene_id for o in outcomes if o.status != "failed"],
-            [s.id for s in parsed.season],
-        )
+    def season_line(done: dict) -> None:
         if not quiet:
-            click.echo(f"report: {report_path}")
-    if len(outcomes) == 1 and failed:
+            click.echo(
+                f"{done['season_id']}: season {done['start']} to {done['end']} from "
+                f"{len(done['scenes'])} scenes, mean {done['mean_et_season_mm']:.0f} mm "
+                f"(reference ET {done['reference_et_total_mm']:.0f} mm) -> "
+                f"{settings.out_dir / done['season_id']}"
+            )
+
+    done = run_recipe(parsed, table, settings, scene_line, season_line, force=force)
+    if not quiet:
+        for path in done.zone_tables:
+            click.echo(f"zones: {path}")
+        if done.report is not None:
+            click.echo(f"report: {done.report}")
+    failed = [o for o in done.scenes if o.status == "failed"]
+    if len(done.scenes) == 1 and failed:
         raise RasterBudgetError(failed[0].message)
     if failed:
         click.echo(
-            f"rasterbudget: {len(failed)} of {len(outcomes)} scenes failed "
+            f"rasterbudget: {len(failed)} of {len(done.scenes)} scenes failed "
             f"(see {settings.out_dir / 'batch.csv'})",
             err=True,
         )
@@ -302,7 +286,7 @@ def compare(
                     "in its [[comparison]] and [compare.zones] tables, not on the command line."
                 )
             from .recipe import load_compare_recipe
-            from .season.compare import run_compare_recipe
+            from .workflow import run_compare_recipe
 
             results = run_compare_recipe(load_compare_recipe(current), out_dir)
         else:

@@ -375,33 +375,3 @@ def run_compare(
         summary["outputs"] += ["zones.csv", "zones.geojson"]
     write_text_atomic(out_dir / "compare.json", json.dumps(_json_ready(summary), indent=2) + "\n")
     return summary
-
-
-def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[Path, dict]]:
-    """Run each ``[[comparison]]`` of a comparison recipe into ``OUT/<id>/``; write the report."""
-    from ..recipe import resolve_path
-    from ..report import write_compare_report
-
-    settings = recipe.compare
-    out = out_override if out_override is not None else resolve_path(recipe, settings.out)
-    zones = (
-        (resolve_path(recipe, settings.zones.path), settings.zones.id_property)
-        if settings.zones is not None
-        else None
-    )
-    results = []
-    for c in recipe.comparison:
-        folder = out / c.id
-        summary = run_compare(
-            resolve_path(recipe, c.current),
-            folder,
-            resolve_path(recipe, c.previous) if c.previous else None,
-            [resolve_path(recipe, p) for p in c.baseline],
-            settings.chunk_size,
-            settings.tile_size,
-            zones,
-            label=c.id,
-        )
-        results.append((folder, summary))
-    write_compare_report(out, results)
-    return results

@@ -1,4 +1,7 @@
-"""Batches of scenes: run each, keep going past failures, skip what is complete, summarise.
+"""Whole recipes: the batch of scenes, then season totals, zone tables and the report; and the
+comparisons of a comparison recipe with theirs.
+
+Batches of scenes: run each, keep going past failures, skip what is complete, summarise.
 
 A scene is complete when its ``manifest.json`` says so and its fingerprint - a hash of the
 scene's parameters, the class table, the run settings that shape outputs, the software version and
@@ -153,3 +156,84 @@ def run_batch(
     settings.out_dir.mkdir(parents=True, exist_ok=True)
     write_text_atomic(settings.out_dir / BATCH_TABLE, rows_to_csv([o.row() for o in outcomes]))
     return outcomes
+
+
+@dataclass
+class RecipeOutcome:
+    """What a recipe run did: each scene's outcome, each season's manifest, the zone tables
+    and the report."""
+
+    scenes: list[SceneOutcome]
+    seasons: list[dict] = field(default_factory=list)
+    zone_tables: list[Path] = field(default_factory=list)
+    report: Path | None = None
+
+
+def run_recipe(
+    recipe: Recipe,
+    table: ClassTable,
+    settings: RunSettings,
+    on_scene=None,
+    on_season=None,
+    force: bool = False,
+) -> RecipeOutcome:
+    """Every scene (a batch), then the recipe's seasons, zones and report.
+
+    ``on_scene(outcome)`` and ``on_season(manifest)`` are called as each finishes (the CLI prints
+    a line).
+    """
+    outcomes = run_batch(recipe, table, settings, on_scene, force=force)
+    done = RecipeOutcome(outcomes)
+    zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
+    if recipe.season:
+        from .season.totals import run_season
+
+        for season in recipe.season:
+            done.seasons.append(run_season(recipe, season, settings))
+            if on_season is not None:
+                on_season(done.seasons[-1])
+    if recipe.zones is not None:
+        from .season.zones import run_zones
+
+        zone_targets += [(s.id, "et_season") for s in recipe.season]
+        done.zone_tables = run_zones(recipe, settings, zone_targets)
+    if settings.quicklook:
+        from .report import write_report
+
+        done.report = write_report(
+            settings.out_dir,
+            [o.scene_id for o in outcomes if o.status != "failed"],
+            [s.id for s in recipe.season],
+        )
+    return done
+
+
+def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[Path, dict]]:
+    """Run each ``[[comparison]]`` of a comparison recipe into ``OUT/<id>/``; write the report."""
+    from .recipe import resolve_path
+    from .report import write_compare_report
+    from .season.compare import run_compare
+
+    settings = recipe.compare
+    out = out_override if out_override is not None else resolve_path(recipe, settings.out)
+    zones = (
+        (resolve_path(recipe, settings.zones.path), settings.zones.id_property)
+        if settings.zones is not None
+        else None
+    )
+    results = []
+    for c in recipe.comparison:
+        folder = out / c.id
+        summary = run_compare(
+            resolve_path(recipe, c.current),
+            folder,
+            resolve_path(recipe, c.previous) if c.previous else None,
+            [resolve_path(recipe, p) for p in c.baseline],
+            settings.chunk_size,
+            settings.tile_size,
+            zones,
+            label=c.id,
+        )
+        results.append((folder, summary))
+    write_compare_report(out, results)
+    return results
