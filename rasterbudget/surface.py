@@ -130,9 +130,10 @@ def surface_block(
         longitude when not given. [-]
     daily : also compute the FAO-56 daily net radiation (not needed for anchor histograms).
     masked : pixels dropped by a cloud/QA mask. [bool]
-    weather : gridded overpass weather on the block, by recipe key (``air_temperature_c`` [degC],
-        ``relative_humidity_pct`` [%], ``shortwave_in_w_m2`` [W m-2]); replaces the station
-        value (and, for air temperature, its lapse-rate adjustment) pixel by pixel.
+    weather : gridded overpass weather on the block, by quantity, in SI units
+        (``catalog.inputs.gridded_weather_in_si``): ``air_temperature`` [K],
+        ``relative_humidity`` [%], ``shortwave_in`` [W m-2]; replaces the station value (and,
+        for air temperature, its lapse-rate adjustment) pixel by pixel.
 
     Returns
     -------
@@ -191,11 +192,11 @@ def surface_block(
     # Shortwave: FAO-56 eq. 37 clear-sky transmissivity, or the station's measured value carried to
     # each pixel's elevation with the same elevation dependence.
     tau = radiation.clear_sky_transmissivity(z)
-    if "shortwave_in_w_m2" in weather:
+    if "shortwave_in" in weather:
         # measured on the horizontal: tau = Rs / (Gsc cos(zenith) dr), then onto the slope
         with np.errstate(invalid="ignore", divide="ignore"):
             tau = np.clip(
-                weather["shortwave_in_w_m2"]
+                weather["shortwave_in"]
                 / (SOLAR_CONSTANT * np.maximum(cos_zenith, 0.05) * c.inverse_distance),
                 0.05,
                 1.0,
@@ -206,14 +207,14 @@ def surface_block(
         )
     sw_in = radiation.shortwave_in(cos_theta, c.inverse_distance, tau)
 
-    if "air_temperature_c" in weather:
-        air_temperature = weather["air_temperature_c"] + ZERO_CELSIUS
+    if "air_temperature" in weather:
+        air_temperature = weather["air_temperature"]
     else:
         air_temperature = c.air_temperature - LAPSE_RATE * (z - c.station_elevation)
     vapour_pressure = c.vapour_pressure
-    if "relative_humidity_pct" in weather:
+    if "relative_humidity" in weather:
         vapour_pressure = turbulence.vapour_pressure_from_relative_humidity(
-            air_temperature, weather["relative_humidity_pct"]
+            air_temperature, weather["relative_humidity"]
         )
     if c.longwave_in_method == "brutsaert":
         eps_air = radiation.atmospheric_emissivity_brutsaert(vapour_pressure, air_temperature)

@@ -10,6 +10,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
+from ..physics.constants import ZERO_CELSIUS
+
 __all__ = ["CATEGORICAL", "INPUTS", "WEATHER_ROLES", "InputRole", "target_role"]
 
 
@@ -25,6 +29,8 @@ class InputRole:
     description: str
     target: bool = False  # the target grid is this input's (unless [scene.grid] is given)
     halo: int = 0  # extra pixels read around each window (slopes need 1)
+    quantity: str = ""  # the per-pixel quantity it gives, in SI units (weather only)
+    si_offset: float = 0.0  # added on reading to reach SI units (degC -> K)
 
     @property
     def recipe_key(self) -> str:
@@ -38,10 +44,37 @@ _ROWS = (
     InputRole("ndvi", "inputs", False, False, "1", "normalized difference vegetation index"),
     InputRole("elevation", "inputs", False, False, "m", "elevation above sea level", halo=1),
     InputRole("cloud_mask", "inputs", False, True, "code", "cloud/QA mask values or bits"),
-    InputRole("air_temperature_c", "overpass", False, False, "degC", "air temperature"),
-    InputRole("relative_humidity_pct", "overpass", False, False, "%", "relative humidity"),
-    InputRole("wind_speed_m_s", "overpass", False, False, "m s-1", "wind speed"),
-    InputRole("shortwave_in_w_m2", "overpass", False, False, "W m-2", "incoming shortwave"),
+    InputRole(
+        "air_temperature_c",
+        "overpass",
+        False,
+        False,
+        "degC",
+        "air temperature",
+        quantity="air_temperature",  # [K]
+        si_offset=ZERO_CELSIUS,
+    ),
+    InputRole(
+        "relative_humidity_pct",
+        "overpass",
+        False,
+        False,
+        "%",
+        "relative humidity",
+        quantity="relative_humidity",  # [%], as FAO-56 writes its humidity formulas
+    ),
+    InputRole(
+        "wind_speed_m_s", "overpass", False, False, "m s-1", "wind speed", quantity="wind_speed"
+    ),
+    InputRole(
+        "shortwave_in_w_m2",
+        "overpass",
+        False,
+        False,
+        "W m-2",
+        "incoming shortwave",
+        quantity="shortwave_in",
+    ),
 )
 
 INPUTS: dict[str, InputRole] = {r.name: r for r in _ROWS}
@@ -52,6 +85,16 @@ WEATHER_ROLES = tuple(n for n, r in INPUTS.items() if r.section == "overpass")
 
 #: Inputs holding class codes are resampled with nearest neighbour; all others bilinearly.
 CATEGORICAL = frozenset(n for n, r in INPUTS.items() if r.categorical)
+
+
+def gridded_weather_in_si(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """The gridded weather among a block's inputs, by quantity, in SI units: the one place
+    where weather rasters leave the recipe's units (wind enters H apart, not the state)."""
+    return {
+        INPUTS[k].quantity: data[k] + INPUTS[k].si_offset if INPUTS[k].si_offset else data[k]
+        for k in WEATHER_ROLES
+        if k in data and k != "wind_speed_m_s"
+    }
 
 
 def target_role() -> str:

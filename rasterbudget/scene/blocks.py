@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from ..catalog.inputs import WEATHER_ROLES
+from ..catalog.inputs import gridded_weather_in_si
 from ..catalog.qa import QA
 from ..catalog.variables import QA_OUTPUT
 from ..errors import InputValueError
@@ -120,7 +120,7 @@ def block_state(
         sun=sun,
         daily=daily,
         masked=masked,
-        weather={k: data[k] for k in WEATHER_ROLES if k in data and k != "wind_speed_m_s"},
+        weather=gridded_weather_in_si(data),
     )
     state["input_stats"] = stats
     # wind at the blending height, per pixel from a wind grid or the station's one value

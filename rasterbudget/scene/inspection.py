@@ -16,7 +16,7 @@ import rasterio
 from rasterio.transform import Affine
 
 from ..catalog.classes import ClassTable
-from ..catalog.inputs import WEATHER_ROLES, target_role
+from ..catalog.inputs import gridded_weather_in_si, target_role
 from ..io.grid import (
     GDAL_OPTIONS,
     Grid,
@@ -141,11 +141,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         ndvi=data.get("ndvi"),
         elevation=data.get("elevation"),
         masked=masked,
-        weather={
-            k: data[k]
-            for k in WEATHER_ROLES
-            if k in data and k != "wind_speed_m_s"  # wind enters H, not the surface state
-        },
+        weather=gridded_weather_in_si(data),
     )
     codes = land_cover_codes(data["land_cover"])
     lines.append("  per class (sampled): pixels, albedo outside the class range, median Ts")
