@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import sys
 from pathlib import Path
 
@@ -12,6 +13,42 @@ from .errors import RasterBudgetError
 debug_option = click.option(
     "--debug", is_flag=True, help="Show the full traceback on errors (for bug reports)."
 )
+
+
+def command(func):
+    """A subcommand of ``main`` with the shared ``--debug`` option; a RasterBudgetError becomes
+    one line on standard error and exit status 2."""
+
+    @functools.wraps(func)
+    def wrapper(*args, debug: bool, **kwargs):
+        try:
+            return func(*args, **kwargs)
+        except RasterBudgetError as err:
+            _fail(err, debug)
+
+    return main.command()(debug_option(wrapper))
+
+
+def chunk_size_option(default: int | None, help: str):
+    """``--chunk-size``, the same range for every command."""
+    return click.option(
+        "--chunk-size",
+        type=click.IntRange(64, 16384),
+        default=default,
+        show_default=default is not None,
+        help=help,
+    )
+
+
+def tile_size_option(default: int | None, help: str):
+    """``--tile-size``, the same range for every command."""
+    return click.option(
+        "--tile-size",
+        type=click.IntRange(16, 16384),
+        default=default,
+        show_default=default is not None,
+        help=help,
+    )
 
 
 def _fail(err: Exception, debug: bool) -> None:
@@ -45,7 +82,7 @@ def main() -> None:
     """
 
 
-@main.command()
+@command
 @click.argument("recipe", type=click.Path(dir_okay=False, path_type=Path))
 @click.option(
     "--out",
@@ -53,17 +90,12 @@ def main() -> None:
     type=click.Path(file_okay=False, path_type=Path),
     help="Output folder (default: run.out in the recipe, relative to the recipe).",
 )
-@click.option(
-    "--chunk-size",
-    type=click.IntRange(64, 16384),
-    help="Edge of the square pixel blocks processed at once; sets peak memory "
+@chunk_size_option(
+    None,
+    "Edge of the square pixel blocks processed at once; sets peak memory "
     "(about 60 bytes per pixel per thread). Rounded up to a multiple of 16.",
 )
-@click.option(
-    "--tile-size",
-    type=click.IntRange(16, 16384),
-    help="Edge in pixels of the tiles summarised in tiles.csv / tiles.geojson.",
-)
+@tile_size_option(None, "Edge in pixels of the tiles summarised in tiles.csv / tiles.geojson.")
 @click.option(
     "--components",
     is_flag=True,
@@ -87,7 +119,6 @@ def main() -> None:
     type=click.IntRange(1, 1024),
     help="Start a local dask.distributed cluster of this many worker processes.",
 )
-@debug_option
 def run(
     recipe: Path,
     out_dir: Path | None,
@@ -99,7 +130,6 @@ def run(
     force: bool,
     scheduler: str | None,
     workers: int | None,
-    debug: bool,
 ) -> None:
     """Run every scene of RECIPE and write its outputs to OUT/<scene id>/.
 
@@ -117,18 +147,15 @@ def run(
     """
     import contextlib
 
-    try:
-        if scheduler is not None and workers is not None:
-            raise RasterBudgetError("give --scheduler or --workers, not both.")
-        cluster = contextlib.nullcontext()
-        if scheduler is not None or workers is not None:
-            from .io.cluster import dask_cluster
+    if scheduler is not None and workers is not None:
+        raise RasterBudgetError("give --scheduler or --workers, not both.")
+    cluster = contextlib.nullcontext()
+    if scheduler is not None or workers is not None:
+        from .io.cluster import dask_cluster
 
-            cluster = dask_cluster(scheduler, workers)
-        with cluster:
-            _run(recipe, out_dir, chunk_size, tile_size, components, no_quicklook, quiet, force)
-    except RasterBudgetError as err:
-        _fail(err, debug)
+        cluster = dask_cluster(scheduler, workers)
+    with cluster:
+        _run(recipe, out_dir, chunk_size, tile_size, components, no_quicklook, quiet, force)
 
 
 def _run(
@@ -203,7 +230,7 @@ def _run(
         sys.exit(1)
 
 
-@main.command()
+@command
 @click.argument("current", type=click.Path(dir_okay=False, path_type=Path))
 @click.option(
     "--previous",
@@ -235,21 +262,8 @@ def _run(
     show_default=True,
     help="Property of each polygon that holds its zone id.",
 )
-@click.option(
-    "--chunk-size",
-    type=click.IntRange(64, 16384),
-    default=512,
-    show_default=True,
-    help="Edge of the blocks processed at once.",
-)
-@click.option(
-    "--tile-size",
-    type=click.IntRange(16, 16384),
-    default=256,
-    show_default=True,
-    help="Edge of the tiles of tiles.csv.",
-)
-@debug_option
+@chunk_size_option(512, "Edge of the blocks processed at once.")
+@tile_size_option(256, "Edge of the tiles of tiles.csv.")
 def compare(
     current: Path,
     previous: Path | None,
@@ -259,7 +273,6 @@ def compare(
     zone_id: str,
     chunk_size: int,
     tile_size: int,
-    debug: bool,
 ) -> None:
     """Compare CURRENT (e.g. a season's et_season.tif) with another period or a baseline, or run
     the comparisons of a comparison recipe (CURRENT ending in .toml).
@@ -276,45 +289,37 @@ def compare(
       rasterbudget compare summer_2026/et_season.tif --baseline y2021.tif \\
           --baseline y2022.tif --baseline y2023.tif --out anomaly --zones fields.geojson
     """
-    try:
-        from .season.compare import run_compare
+    from .season.compare import run_compare
 
-        if current.suffix.lower() == ".toml":
-            if previous is not None or baseline or zones_path is not None:
-                raise RasterBudgetError(
-                    f"{current} is a comparison recipe: give --previous, --baseline and --zones "
-                    "in its [[comparison]] and [compare.zones] tables, not on the command line."
-                )
-            from .recipe import load_compare_recipe
-            from .workflow import run_compare_recipe
-
-            results = run_compare_recipe(load_compare_recipe(current), out_dir)
-        else:
-            if out_dir is None:
-                raise RasterBudgetError("give --out: the folder for the comparison outputs.")
-            zones = (zones_path, zone_id) if zones_path is not None else None
-            summary = run_compare(
-                current, out_dir, previous, list(baseline), chunk_size, tile_size, zones
+    if current.suffix.lower() == ".toml":
+        if previous is not None or baseline or zones_path is not None:
+            raise RasterBudgetError(
+                f"{current} is a comparison recipe: give --previous, --baseline and --zones "
+                "in its [[comparison]] and [compare.zones] tables, not on the command line."
             )
-            results = [(out_dir, summary)]
-        for folder, summary in results:
-            wrote = ", ".join(summary["outputs"])
-            click.echo(f"{summary['comparison']}: wrote {wrote} to {folder}")
-            for row in summary.get("categories", []):
-                click.echo(f"  {row['category']:15s} {row['share_of_valid_area']:7.1%}")
-    except RasterBudgetError as err:
-        _fail(err, debug)
+        from .recipe import load_compare_recipe
+        from .workflow import run_compare_recipe
+
+        results = run_compare_recipe(load_compare_recipe(current), out_dir)
+    else:
+        if out_dir is None:
+            raise RasterBudgetError("give --out: the folder for the comparison outputs.")
+        zones = (zones_path, zone_id) if zones_path is not None else None
+        summary = run_compare(
+            current, out_dir, previous, list(baseline), chunk_size, tile_size, zones
+        )
+        results = [(out_dir, summary)]
+    for folder, summary in results:
+        wrote = ", ".join(summary["outputs"])
+        click.echo(f"{summary['comparison']}: wrote {wrote} to {folder}")
+        for row in summary.get("categories", []):
+            click.echo(f"  {row['category']:15s} {row['share_of_valid_area']:7.1%}")
 
 
-@main.command()
+@command
 @click.argument("recipe", type=click.Path(dir_okay=False, path_type=Path))
-@click.option(
-    "--chunk-size",
-    type=click.IntRange(64, 16384),
-    help="Chunk size the run will use (for the memory estimate).",
-)
-@debug_option
-def inspect(recipe: Path, chunk_size: int | None, debug: bool) -> None:
+@chunk_size_option(None, "Chunk size the run will use (for the memory estimate).")
+def inspect(recipe: Path, chunk_size: int | None) -> None:
     """Check RECIPE's inputs before a long run, on a decimated sample of each raster.
 
     Prints per input its CRS, resolution, extent, overlap with the target grid, dtype, nodata,
@@ -327,17 +332,14 @@ def inspect(recipe: Path, chunk_size: int | None, debug: bool) -> None:
     Example:
       rasterbudget inspect workflows/demo.toml
     """
-    try:
-        from .scene.inspection import inspect_recipe
+    from .scene.inspection import inspect_recipe
 
-        parsed, table = _recipe_and_classes(recipe)
-        for line in inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size):
-            click.echo(line)
-    except RasterBudgetError as err:
-        _fail(err, debug)
+    parsed, table = _recipe_and_classes(recipe)
+    for line in inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size):
+        click.echo(line)
 
 
-@main.command()
+@command
 @click.option(
     "--out",
     "out_dir",
@@ -346,36 +348,32 @@ def inspect(recipe: Path, chunk_size: int | None, debug: bool) -> None:
     show_default=True,
     help="Folder to write into.",
 )
-@debug_option
-def demo(out_dir: Path, debug: bool) -> None:
+def demo(out_dir: Path) -> None:
     """Regenerate the invented Kessendry Basin demo rasters (deterministic).
 
     \b
     Example:
       rasterbudget demo --out tiny_rasters
     """
-    try:
-        from .demo import (
-            SERIES_YEARS,
-            make_daily_weather,
-            make_mixed_grid_inputs,
-            make_season_series,
-            make_tiny_rasters,
-            make_zones,
-        )
+    from .demo import (
+        SERIES_YEARS,
+        make_daily_weather,
+        make_mixed_grid_inputs,
+        make_season_series,
+        make_tiny_rasters,
+        make_zones,
+    )
 
-        out_dir.mkdir(parents=True, exist_ok=True)
-        files = make_tiny_rasters(out_dir)
-        files += make_mixed_grid_inputs(out_dir)
-        files += make_season_series(out_dir)
-        files += [make_daily_weather(out_dir, year) for year in SERIES_YEARS]
-        files.append(make_zones(out_dir))
-        click.echo(f"wrote {len(files)} files to {out_dir}")
-    except RasterBudgetError as err:
-        _fail(err, debug)
+    out_dir.mkdir(parents=True, exist_ok=True)
+    files = make_tiny_rasters(out_dir)
+    files += make_mixed_grid_inputs(out_dir)
+    files += make_season_series(out_dir)
+    files += [make_daily_weather(out_dir, year) for year in SERIES_YEARS]
+    files.append(make_zones(out_dir))
+    click.echo(f"wrote {len(files)} files to {out_dir}")
 
 
-@main.command()
+@command
 @click.option(
     "--size",
     type=click.IntRange(256, 65536),
@@ -383,13 +381,7 @@ def demo(out_dir: Path, debug: bool) -> None:
     show_default=True,
     help="Edge of the square synthetic scene [pixels].",
 )
-@click.option(
-    "--chunk-size",
-    type=click.IntRange(64, 16384),
-    default=512,
-    show_default=True,
-    help="Chunk edge of the pipeline and the floor.",
-)
+@chunk_size_option(512, "Chunk edge of the pipeline and the floor.")
 @click.option("--repeat", type=click.IntRange(1, 20), default=3, show_default=True)
 @click.option(
     "--whole-array/--no-whole-array",
@@ -406,7 +398,6 @@ def demo(out_dir: Path, debug: bool) -> None:
     type=click.IntRange(1, 1024),
     help="Run the pipeline phase on a local dask.distributed cluster of N worker processes.",
 )
-@debug_option
 def bench(
     size: int,
     chunk_size: int,
@@ -414,7 +405,6 @@ def bench(
     whole_array: bool | None,
     keep: Path | None,
     workers: int | None,
-    debug: bool,
 ) -> None:
     """Time the pipeline against the raw read/write floor on a synthetic scene.
 
@@ -430,14 +420,11 @@ def bench(
     """
     import json
 
-    try:
-        from .bench import format_table, run_bench
+    from .bench import format_table, run_bench
 
-        result = run_bench(size, chunk_size, repeat, whole_array, keep=keep, workers=workers or 0)
-        click.echo(format_table(result))
-        click.echo(json.dumps(result))
-    except RasterBudgetError as err:
-        _fail(err, debug)
+    result = run_bench(size, chunk_size, repeat, whole_array, keep=keep, workers=workers or 0)
+    click.echo(format_table(result))
+    click.echo(json.dumps(result))
 
 
 if __name__ == "__main__":  # pragma: no cover
