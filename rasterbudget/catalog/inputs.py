@@ -2,12 +2,13 @@
 
 A row per role: whether a scene needs it, whether it holds categories (class codes, mask bits:
 resampled by nearest neighbour) or continuous values (bilinear), its units once read, where the
-recipe names it, and whether the target grid is taken from it. Scene runs and ``inspect`` list,
-open and check their inputs from here.
+recipe names it, and whether the target grid is taken from it; a derived input names the inputs
+it is computed from and how. Scene runs and ``inspect`` list, open and check their inputs here.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -31,6 +32,9 @@ class InputRole:
     halo: int = 0  # extra pixels read around each window (slopes need 1)
     quantity: str = ""  # the per-pixel quantity it gives, in SI units (weather only)
     si_offset: float = 0.0  # added on reading to reach SI units (degC -> K)
+    #: a derived input: computed per block from these other inputs when not given as a file
+    derived_from: tuple[str, ...] = ()
+    derive: Callable[..., np.ndarray] | None = None
 
     @property
     def recipe_key(self) -> str:
@@ -95,6 +99,16 @@ def gridded_weather_in_si(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
         for k in WEATHER_ROLES
         if k in data and k != "wind_speed_m_s"
     }
+
+
+def derive_inputs(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Add to a block's inputs every derived input it lacks whose sources it holds."""
+    for role in INPUTS.values():
+        if role.derive is None or role.name in data:
+            continue
+        if all(name in data for name in role.derived_from):
+            data[role.name] = role.derive(*(data[name] for name in role.derived_from))
+    return data
 
 
 def target_role() -> str:

@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from ..catalog.inputs import gridded_weather_in_si
+from ..catalog.inputs import derive_inputs, gridded_weather_in_si
 from ..catalog.qa import QA
 from ..catalog.variables import QA_OUTPUT
 from ..errors import InputValueError
@@ -82,6 +82,7 @@ def block_state(
             data["elevation"] = haloed[1:-1, 1:-1]
         else:
             data[source.role] = read_window(source, rows, cols)
+    data = derive_inputs(data)
     stats = {role: input_stats(role, values) for role, values in data.items()}
     if ctx.remap:
         data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
