@@ -213,6 +213,13 @@ class GridSettings(_Strict):
         return self
 
 
+def _get(model: BaseModel, dotted: str) -> Any:
+    """The value of a dotted key ("overpass.wind_speed_m_s") of a model."""
+    for part in dotted.split("."):
+        model = getattr(model, part)
+    return model
+
+
 class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
@@ -271,9 +278,12 @@ class Scene(_Strict):
             owner = next(m for m in METHODS.values() if m.settings_key == table)
             owner.settings_model.model_validate(values)  # errors name the table's keys
         for key, why in method.needs:
-            section, name = key.split(".")
-            if getattr(getattr(self, section), name) is None:
+            if _get(self, key) is None:
                 raise ValueError(f"sensible_heat = '{method.name}' needs {key} ({why})")
+        for choice, keys in self._weather_needs():
+            missing = [k for k in keys if _get(self, k) is None]
+            if missing:
+                raise ValueError(f"{choice} needs {', '.join(missing)}; add it or choose otherwise")
         if self.uncertainty.members and not method.ensemble:
             with_ensemble = sorted(n for n, m in METHODS.items() if m.ensemble)
             raise ValueError(
@@ -281,6 +291,20 @@ class Scene(_Strict):
                 "remove [scene.uncertainty] or change the method"
             )
         return self
+
+    def _weather_needs(self) -> list[tuple[str, tuple[str, ...]]]:
+        """Choices of the scene and the weather keys each needs."""
+        hourly = ("overpass.relative_humidity_pct", "overpass.wind_speed_m_s")
+        out = []
+        if self.radiation.longwave_in == "brutsaert":
+            out.append(("radiation.longwave_in = 'brutsaert'", hourly[:1]))
+        if self.daily_scaling == "reference_et_fraction":  # hourly and daily reference ET
+            out.append(
+                ("daily_scaling = 'reference_et_fraction'", (*hourly, "daily.wind_speed_m_s"))
+            )
+        if self.reference_et.cold_anchor_fraction is not None:  # hourly reference ET
+            out.append(("reference_et.cold_anchor_fraction", hourly))
+        return out
 
     @field_validator("acquired_utc")
     @classmethod

@@ -113,11 +113,6 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
     ea = None
     if ow.relative_humidity_pct is not None:
         ea = float(turbulence.vapour_pressure_from_relative_humidity(ta, ow.relative_humidity_pct))
-    if scene.radiation.longwave_in == "brutsaert" and ea is None:
-        raise RasterBudgetError(
-            f"scene {scene.id}: radiation.longwave_in = 'brutsaert' needs "
-            "overpass.relative_humidity_pct; give it or use 'bastiaanssen'."
-        )
     longwave_in = scene.radiation.longwave_in
     if longwave_in == "auto":  # the sky's vapour when known (closer to towers, see README)
         longwave_in = "brutsaert" if ea is not None else "bastiaanssen"
@@ -211,7 +206,7 @@ def station_reference_et(
 
     FAO-56 / ASCE-EWRI (2005) Penman-Monteith for the recipe's reference surface. Returns
     ``reference_et_hourly`` / ``reference_et_daily`` as None where the recipe lacks the weather
-    they need, and refuses a recipe whose choices need them.
+    they need (a recipe whose choices need them is refused when it is read, ``recipe.Scene``).
     """
     from ..physics import reference_et
 
@@ -279,17 +274,5 @@ def station_reference_et(
                 vapour_pressure=ea_daily,
                 reference=ref.surface,
             )
-        )
-    needs = []
-    if scene.daily_scaling == "reference_et_fraction":
-        needs += missing_hourly + missing_daily
-    if ref.cold_anchor_fraction is not None:
-        needs += missing_hourly
-    if needs:
-        raise RasterBudgetError(
-            f"scene {scene.id}: reference ET is needed (daily_scaling = "
-            f"'{scene.daily_scaling}', reference_et.cold_anchor_fraction = "
-            f"{ref.cold_anchor_fraction}) but {', '.join(sorted(set(needs)))} "
-            "is missing; add it to the recipe."
         )
     return {"reference_et_hourly": hourly, "reference_et_daily": daily}

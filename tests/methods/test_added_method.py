@@ -105,10 +105,23 @@ def test_an_unknown_method_is_refused_with_the_known_ones(tmp_path):
 
 
 def test_inspect_and_run_refuse_the_same_recipe_before_reading_pixels(tmp_path):
-    # anchors without wind, and an ensemble with a method that has none: refused on reading
+    # anchors without wind, an ensemble with a method that has none, choices that need weather
+    # the recipe lacks: all refused when the recipe is read
     for change in (
         lambda s: s["overpass"].pop("wind_speed_m_s"),
         lambda s: s.update(sensible_heat="edges", uncertainty={"members": 4}),
+        lambda s: (
+            s["overpass"].pop("relative_humidity_pct"),
+            s.update(radiation={"longwave_in": "brutsaert"}),
+        ),
+        lambda s: (
+            s["daily"].pop("wind_speed_m_s"),
+            s.update(daily_scaling="reference_et_fraction"),
+        ),
+        lambda s: (
+            s["overpass"].pop("relative_humidity_pct"),
+            s.update(reference_et={"cold_anchor_fraction": 1.05}),
+        ),
     ):
         data = demo_recipe_dict()
         change(data["scene"][0])
