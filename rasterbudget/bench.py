@@ -27,7 +27,6 @@ One bench run
 
 from __future__ import annotations
 
-import itertools
 import json
 import os
 import resource
@@ -138,69 +137,60 @@ def _load(recipe_path: Path):
     return load_recipe(recipe_path), load_class_table(None)
 
 
+def _read_inputs(paths: list[Path], location) -> list[np.ndarray]:
+    """One block of every input, float32, window by window."""
+    import rasterio
+    from rasterio.windows import Window
+
+    (r0, r1), (c0, c1) = location
+    window = Window(c0, r0, c1 - c0, r1 - r0)
+    values = []
+    for path in paths:
+        with rasterio.open(path) as src:
+            values.append(src.read(1, window=window).astype(np.float32))
+    return values
+
+
+def _read_only_block(paths: list[Path], location) -> int:
+    """Read one block of every input; its count of finite values."""
+    # a small result per block, as pass 1's histograms: the reads are the cost
+    return sum(int(np.count_nonzero(np.isfinite(v))) for v in _read_inputs(paths, location))
+
+
+def _floor_block(paths: list[Path], n_fields: int, location) -> np.ndarray:
+    """One block of the floor's outputs, float32 (n_fields + 1, rows, cols): output-like fields,
+    then a QA-like code layer."""
+    albedo, lst, ndvi, codes, z = _read_inputs(paths, location)
+    # Output-like fields from the inputs (one multiply-add each): realistic to compress.
+    fields = [lst * (0.5 + 0.1 * k) + albedo * 100.0 * k + ndvi for k in range(n_fields)]
+    return np.stack([*fields, codes + (z > 2000)])
+
+
 def floor_phase(recipe_path: Path, out_dir: Path, chunk: int, passes: int = 1) -> float:
     """Read every input once and write every pipeline output raster; no physics [s].
 
     ``passes = 2``: first a pass that only reads every input (as the pipeline's pass 1 does), then
     the read-and-write pass: the floor of any method that needs an image-wide reduction first.
+    Both passes run through the blockwise engine, as the pipeline's do.
     """
-    import dask
-    import dask.array as da
+    import operator
+
     import rasterio
-    from rasterio.windows import Window
 
     from .catalog.variables import FLUX_OUTPUTS, QA_OUTPUT
+    from .io.engine import BlockLayout, Target, run_blockwise
     from .io.grid import GDAL_OPTIONS, Grid
     from .io.writers import AtomicRaster, block_size_for
 
-    inputs = {role: recipe_path.parent / f"{role}.tif" for role in _SOURCES.values()}
-    with rasterio.open(inputs["albedo"]) as src:
+    inputs = [recipe_path.parent / f"{role}.tif" for role in _SOURCES.values()]
+    with rasterio.open(inputs[0]) as src:
         grid = Grid(src.crs, src.transform, src.width, src.height)
     names = [*FLUX_OUTPUTS, QA_OUTPUT]
     started = time.perf_counter()
-
-    def read_inputs(r0: int, r1: int, c0: int, c1: int) -> list[np.ndarray]:
-        window = Window(c0, r0, c1 - c0, r1 - r0)
-        values = []
-        for path in inputs.values():
-            with rasterio.open(path) as src:
-                values.append(src.read(1, window=window).astype(np.float32))
-        return values
-
-    def block(r0: int, r1: int, c0: int, c1: int) -> np.ndarray:
-        albedo, lst, ndvi, codes, z = read_inputs(r0, r1, c0, c1)
-        # Output-like fields from the inputs (one multiply-add each): realistic to compress.
-        fields = [lst * (0.5 + 0.1 * k) + albedo * 100.0 * k + ndvi for k in range(len(names) - 1)]
-        return np.stack([*fields, codes + (z > 2000)])
-
-    def read_only(r0: int, r1: int, c0: int, c1: int) -> int:
-        # a small result per block, as pass 1's histograms: the reads are the cost
-        return sum(int(np.count_nonzero(np.isfinite(v))) for v in read_inputs(r0, r1, c0, c1))
-
-    rows = [*range(0, grid.height, chunk), grid.height]
-    cols = [*range(0, grid.width, chunk), grid.width]
+    layout = BlockLayout(grid.height, grid.width, chunk)
     if passes == 2:
         with rasterio.Env(**GDAL_OPTIONS):
-            dask.compute(
-                *[
-                    dask.delayed(read_only)(r0, r1, c0, c1)
-                    for r0, r1 in itertools.pairwise(rows)
-                    for c0, c1 in itertools.pairwise(cols)
-                ]
-            )
-    stacked = da.block(
-        [
-            [
-                da.from_delayed(
-                    dask.delayed(block)(r0, r1, c0, c1),
-                    shape=(len(names), r1 - r0, c1 - c0),
-                    dtype=np.float32,
-                )
-                for c0, c1 in itertools.pairwise(cols)
-            ]
-            for r0, r1 in itertools.pairwise(rows)
-        ]
-    )
+            run_blockwise(layout, _read_only_block, args=(inputs,), combine=operator.add)
     out_dir.mkdir(parents=True, exist_ok=True)
     size = block_size_for(chunk)
     writers = [
@@ -209,12 +199,16 @@ def floor_phase(recipe_path: Path, out_dir: Path, chunk: int, passes: int = 1) -
     ]
     qa_path = out_dir / f"{QA_OUTPUT}.tif"
     writers.append(AtomicRaster(qa_path, grid, "uint16", None, size, QA_OUTPUT, "", ""))
-    sources = [stacked[k] for k in range(len(names) - 1)]
-    sources.append(stacked[-1].astype(np.uint16))
     with rasterio.Env(**GDAL_OPTIONS):
-        da.store(sources, writers, lock=False)
-    for w in writers:
-        w.commit()
+        run_blockwise(
+            layout,
+            _floor_block,
+            args=(inputs, len(names) - 1),
+            layers=len(names),
+            dtype=np.float32,
+            targets=[Target(k, w.dtype, w) for k, w in enumerate(writers)],
+            outputs=writers,
+        )
     return time.perf_counter() - started
 
 

@@ -140,9 +140,9 @@ def run_blockwise(
 
     import dask
 
-    arg_tasks = [dask.delayed(a) for a in args]
     in_tasks = reduce_array is None and (tiles is None or layout.chunk % tiles.size == 0)
     try:
+        arg_tasks = [dask.delayed(a) for a in args]  # inside: a failure here aborts the outputs
         if not layers:
             parts = [dask.delayed(task)(*arg_tasks, loc) for loc in layout.locations]
             wanted = [tree_reduce(parts, combine)]
@@ -168,7 +168,7 @@ def run_blockwise(
                 reduce_array,
             )
         with progress() if progress is not None else contextlib.nullcontext():
-            computed = dask.compute(*wanted)
+            computed = compute_in_order(wanted)
         release_free_memory()
         finish_all([w for w in outputs if isinstance(w, AtomicRaster)])
         for w in outputs:
@@ -270,6 +270,46 @@ def _as_array(
         summary = tree_reduce(parts, combine)
     reductions = list(reduce_array(stacked)) if reduce_array is not None else []
     return [store, tile_stats, summary, *reductions]
+
+
+def compute_in_order(wanted: Sequence) -> tuple:
+    """``dask.compute(*wanted)`` with every result at its own position.
+
+    dask (2026.8) merges the graphs of the collections of one kind (arrays, delayed) into one
+    group each and returns the results group by group, so an array placed after a delayed item
+    received a delayed item's result. Each item here holds one kind of collection; the items go
+    to dask sorted so that each kind is contiguous (first kind first), and the results come back
+    in the caller's order. Sorting changes neither the merged graph nor any value.
+    """
+    import dask
+
+    kinds = [_collection_kind(w) for w in wanted]
+    first = {}
+    for kind in kinds:
+        first.setdefault(kind, len(first))
+    order = sorted(range(len(wanted)), key=lambda i: first[kinds[i]])
+    results = dask.compute(*[wanted[i] for i in order])
+    computed: list = [None] * len(wanted)
+    for position, result in zip(order, results, strict=True):
+        computed[position] = result
+    return tuple(computed)
+
+
+def _collection_kind(value) -> str | None:
+    """The kind of dask collection ``value`` holds (in nested lists and tuples), None if none."""
+    import dask
+    from dask.delayed import Delayed
+
+    if isinstance(value, Delayed):
+        return "delayed"
+    if isinstance(value, list | tuple):
+        kinds = {_collection_kind(v) for v in value} - {None}
+        if len(kinds) > 1:
+            raise ValueError(f"one item of a blockwise compute mixes dask collections {kinds}")
+        return kinds.pop() if kinds else None
+    if dask.is_dask_collection(value):
+        return type(value).__name__
+    return None
 
 
 def tree_reduce(items: list, combine, split_every: int = 8):

@@ -9,7 +9,6 @@ in the more extreme class (z = -1.0 is moderately dry). For ET, below normal rea
 
 from __future__ import annotations
 
-import itertools
 import json
 import warnings
 from pathlib import Path
@@ -159,6 +158,67 @@ def _json_ready(value):
     return value
 
 
+def compare_block(
+    current: Path, previous: Path | None, baseline: list[Path], location
+) -> np.ndarray:
+    """The comparison layers of one block, a float64 array (layers, rows, cols): current, then
+    with ``previous`` previous, difference and percent change [%], then with two or more
+    ``baseline`` rasters the baseline mean, standardized anomaly [-] and drought category code.
+    Masked pixels are NaN; ``location`` is the block's ((row0, row1), (col0, col1))."""
+    import rasterio
+    from rasterio import windows
+
+    (r0, r1), (c0, c1) = location
+    window = windows.Window(c0, r0, c1 - c0, r1 - r0)
+
+    def read(p):
+        with rasterio.open(p) as src:
+            return src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
+
+    x = read(current)
+    out = [x]
+    if previous is not None:
+        y = read(previous)
+        out += [y, difference(x, y), percent_change(x, y)]
+    if len(baseline) >= 2:
+        stack = np.stack([read(p) for p in baseline])
+        z = standardized_anomaly(x, stack)
+        with np.errstate(invalid="ignore"), warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            mean = np.nanmean(stack, axis=0)
+        out += [mean, z, drought_category(z).astype(np.float64)]
+    return np.stack(out)
+
+
+def zone_sums_of_block(
+    values: np.ndarray,
+    location,
+    *,
+    grid,
+    keep: list[int],
+    category: int | None,
+    geometries: list,
+    boxes: list,
+) -> list[np.ndarray]:
+    """A one-item list holding ``zone_comparison_sums`` of one block of ``compare_block`` layers
+    (area-weighted sums [m2 x units], areas [m2]): the layers ``keep``, then the category layer
+    ``category`` when there is one. A list so that the blocks' sums concatenate in row-major order
+    and are added in that order afterwards (their last bits do not depend on the reduction)."""
+    from rasterio import windows
+
+    from .zones import block_masks, cell_areas
+
+    (r0, r1), (c0, c1) = location
+    window = windows.Window(c0, r0, c1 - c0, r1 - r0)
+    transform = windows.transform(window, grid.transform)
+    masks = block_masks(geometries, boxes, transform, values.shape[1:])
+    picked = values[keep]
+    if category is not None:
+        picked = np.concatenate([picked, values[[category]]])
+    areas = cell_areas(grid, slice(r0, r1))
+    return [zone_comparison_sums(picked, category is not None, masks, areas, len(geometries))]
+
+
 def run_compare(
     current: Path,
     out_dir: Path,
@@ -174,12 +234,14 @@ def run_compare(
     One chunked pass and one dask compute: the rasters, the tile statistics, the category counts
     and the per-zone sums come from the same blocks. Returns a summary (also ``compare.json``).
     """
-    import dask
+    import operator
+    from functools import partial
+
     import dask.array as da
     import rasterio
-    from rasterio import features, windows
+    from rasterio import features
 
-    from ..io.engine import effective_chunk_size
+    from ..io.engine import BlockLayout, Target, Tiles, run_blockwise
     from ..io.grid import GDAL_OPTIONS, Grid
     from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
     from ..scene.summaries import (
@@ -219,68 +281,19 @@ def run_compare(
         )
     zone_ids: list[str] = []
     if zones is not None:
-        from .zones import block_masks, cell_areas, load_zones
+        from .zones import load_zones
 
         zone_ids, zone_props, zone_original, zone_geoms = load_zones(zones[0], zones[1], grid.crs)
-        zone_boxes = [features.bounds(g) for g in zone_geoms]
-    chunk = effective_chunk_size(chunk)
-    block = block_size_for(chunk)
+    layout = BlockLayout.over(grid, chunk)
+    block = block_size_for(layout.chunk)
     names = ["current"]
     if previous is not None:
         names += ["previous", "difference", "percent_change"]
     if len(baseline) >= 2:
         names += ["baseline_mean", "standardized_anomaly", "drought_category"]
     with_category = "drought_category" in names
+    category = names.index("drought_category") if with_category else None
 
-    def task(r0, r1, c0, c1):
-        window = windows.Window(c0, r0, c1 - c0, r1 - r0)
-
-        def read(p):
-            with rasterio.open(p) as src:
-                return src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
-
-        x = read(current)
-        out = [x]
-        if previous is not None:
-            y = read(previous)
-            out += [y, difference(x, y), percent_change(x, y)]
-        if len(baseline) >= 2:
-            stack = np.stack([read(p) for p in baseline])
-            z = standardized_anomaly(x, stack)
-            with np.errstate(invalid="ignore"), warnings.catch_warnings():
-                warnings.simplefilter("ignore", RuntimeWarning)
-                mean = np.nanmean(stack, axis=0)
-            out += [mean, z, drought_category(z).astype(np.float64)]
-        return np.stack(out)
-
-    def zone_task(values, r0, r1, c0, c1):
-        window = windows.Window(c0, r0, c1 - c0, r1 - r0)
-        transform = windows.transform(window, grid.transform)
-        masks = block_masks(zone_geoms, zone_boxes, transform, values.shape[1:])
-        # zone sums over: current, [difference], [anomaly], [category]
-        keep = [names.index(n) for n in ZONE_VARIABLES if n in names]
-        picked = values[keep]
-        if with_category:
-            picked = np.concatenate([picked, values[[names.index("drought_category")]]])
-        return zone_comparison_sums(
-            picked, with_category, masks, cell_areas(grid, slice(r0, r1)), len(zone_ids)
-        )
-
-    rows = [*range(0, grid.height, chunk), grid.height]
-    cols = [*range(0, grid.width, chunk), grid.width]
-    delayed_blocks = [
-        [dask.delayed(task)(r0, r1, c0, c1) for c0, c1 in itertools.pairwise(cols)]
-        for r0, r1 in itertools.pairwise(rows)
-    ]
-    stacked = da.block(
-        [
-            [
-                da.from_delayed(b, shape=(len(names), r1 - r0, c1 - c0), dtype=np.float64)
-                for b, (c0, c1) in zip(row, itertools.pairwise(cols), strict=True)
-            ]
-            for row, (r0, r1) in zip(delayed_blocks, itertools.pairwise(rows), strict=True)
-        ]
-    )
     out_dir.mkdir(parents=True, exist_ok=True)
     remove_stale_partials(out_dir)
     described = {
@@ -293,49 +306,55 @@ def run_compare(
         ),
     }
     written = [n for n in names if n in described]
-    writers, sources = [], []
+    writers, targets = [], []
     for name in written:
-        categorical = name == "drought_category"
-        writers.append(
-            AtomicRaster(
-                out_dir / f"{name}.tif",
-                grid,
-                "uint8" if categorical else "float32",
-                0 if categorical else np.nan,
-                block,
-                name,
-                *described[name],
-            )
+        dtype = "uint8" if name == "drought_category" else "float32"
+        writer = AtomicRaster(
+            out_dir / f"{name}.tif",
+            grid,
+            dtype,
+            0 if dtype == "uint8" else np.nan,
+            block,
+            name,
+            *described[name],
         )
-        sources.append(stacked[names.index(name)].astype(np.uint8 if categorical else np.float32))
-    counts = None
-    if with_category:
-        codes = stacked[names.index("drought_category")]
-        counts = [da.sum(codes == c) for c in range(8)]
+        writers.append(writer)
+        targets.append(Target(names.index(name), dtype, writer))
     summarised = [n for n in names if n != "drought_category"]
-    index = [names.index(n) for n in summarised]
-    tiled = stacked[index].rechunk((len(index), tile_size, tile_size))
-    tile_stats = [
-        [dask.delayed(tile_statistics)(b) for b in row]
-        for row in tiled.to_delayed(optimize_graph=False)[0]
-    ]
-    zone_parts = []
+    zone_sums = None
     if zone_ids:
-        zone_parts = [
-            dask.delayed(zone_task)(b, r0, r1, c0, c1)
-            for row, (r0, r1) in zip(delayed_blocks, itertools.pairwise(rows), strict=True)
-            for b, (c0, c1) in zip(row, itertools.pairwise(cols), strict=True)
-        ]
-    try:
-        with rasterio.Env(**GDAL_OPTIONS):
-            store = da.store(sources, writers, lock=False, compute=False)
-            _, counts, tile_stats, zone_parts = dask.compute(store, counts, tile_stats, zone_parts)
-        for w in writers:
-            w.commit()
-    finally:
-        for w in writers:
-            if not w.committed:
-                w.abort()
+        # zone sums over: current, [previous, difference], [baseline mean, anomaly], [category]
+        zone_sums = partial(
+            zone_sums_of_block,
+            grid=grid,
+            keep=[names.index(n) for n in ZONE_VARIABLES if n in names],
+            category=category,
+            geometries=zone_geoms,
+            boxes=[features.bounds(g) for g in zone_geoms],
+        )
+    with rasterio.Env(**GDAL_OPTIONS):
+        result = run_blockwise(
+            layout,
+            compare_block,
+            args=(current, previous, list(baseline)),
+            layers=len(names),
+            dtype=np.float64,
+            targets=targets,
+            summarise=zone_sums,
+            # lists of per-block sums, concatenated in row-major order
+            combine=operator.add if zone_sums is not None else None,
+            tiles=Tiles([names.index(n) for n in summarised], tile_size, tile_statistics),
+            # pixels per category code 0-7 of the whole raster, by dask's reductions
+            reduce_array=(
+                (lambda array: [da.sum(array[category] == c) for c in range(8)])
+                if with_category
+                else None
+            ),
+            outputs=writers,
+        )
+    counts = result.reductions if with_category else None
+    zone_parts = result.summary
+    tile_stats = result.tiles
     summary: dict = {
         "comparison": label or out_dir.name,
         "variable": variable,

@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import csv
 import datetime as dt
-import itertools
 import json
 import math
 from dataclasses import dataclass
@@ -162,13 +161,38 @@ def grid_check(paths: list[Path]) -> None:
                 )
 
 
+def season_block_layers(
+    paths: list[Path], weights: SeasonWeights, reference_total: float, location
+) -> np.ndarray:
+    """The season layers of one block, a float64 array (4, rows, cols): season ET [mm], mean
+    fraction [-] (season ET over the season's reference ET ``reference_total`` [mm]),
+    valid-scene count and season QA bits.
+
+    ``paths`` are the scenes' fraction rasters sorted by date; ``location`` is the block's
+    ((row0, row1), (col0, col1)).
+    """
+    import rasterio
+    from rasterio.windows import Window
+
+    (r0, r1), (c0, c1) = location
+    window = Window(c0, r0, c1 - c0, r1 - r0)
+    stack = []
+    for p in paths:
+        with rasterio.open(p) as src:
+            stack.append(src.read(1, window=window).astype(np.float64))
+    total, count, qa = season_total_block(np.stack(stack), weights)
+    # the mean fraction is divided here, in float64, as the whole-array division did
+    return np.stack(
+        [total, total / reference_total, count.astype(np.float64), qa.astype(np.float64)]
+    )
+
+
 def run_season(recipe, season, settings) -> dict:
     """Compute one season's totals from its scenes' outputs in one chunked pass."""
-    import dask
     import dask.array as da
     import rasterio
 
-    from ..io.engine import effective_chunk_size
+    from ..io.engine import BlockLayout, Target, run_blockwise
     from ..io.grid import GDAL_OPTIONS, Grid
     from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials
     from ..scene.constants import scene_centre_lonlat
@@ -204,33 +228,8 @@ def run_season(recipe, season, settings) -> dict:
     out_dir = settings.out_dir / season.id
     out_dir.mkdir(parents=True, exist_ok=True)
     remove_stale_partials(out_dir)
-    chunk = effective_chunk_size(settings.chunk_size)
-    block = block_size_for(chunk)
-    row_edges = [*range(0, grid.height, chunk), grid.height]
-    col_edges = [*range(0, grid.width, chunk), grid.width]
-
-    def block_task(r0, r1, c0, c1):
-        window = rasterio.windows.Window(c0, r0, c1 - c0, r1 - r0)
-        stack = []
-        for p in paths:
-            with rasterio.open(p) as src:
-                stack.append(src.read(1, window=window).astype(np.float64))
-        total, count, qa = season_total_block(np.stack(stack), weights)
-        return np.stack([total, count.astype(np.float64), qa.astype(np.float64)])
-
-    blocks = da.block(
-        [
-            [
-                da.from_delayed(
-                    dask.delayed(block_task)(r0, r1, c0, c1),
-                    shape=(3, r1 - r0, c1 - c0),
-                    dtype=np.float64,
-                )
-                for c0, c1 in itertools.pairwise(col_edges)
-            ]
-            for r0, r1 in itertools.pairwise(row_edges)
-        ]
-    )
+    layout = BlockLayout.over(grid, settings.chunk_size)
+    block = block_size_for(layout.chunk)
     writers = [
         AtomicRaster(
             out_dir / "et_season.tif",
@@ -277,26 +276,21 @@ def run_season(recipe, season, settings) -> dict:
             {"season": season.id},
         ),
     ]
-    try:
-        with rasterio.Env(**GDAL_OPTIONS):
-            store = da.store(
-                [
-                    blocks[0].astype(np.float32),
-                    (blocks[0] / float(etr.sum())).astype(np.float32),
-                    blocks[1].astype(np.uint8),
-                    blocks[2].astype(np.uint8),
-                ],
-                writers,
-                lock=False,
-                compute=False,
-            )
-            mean_total = da.nanmean(blocks[0])
-            _, mean_total = dask.compute(store, mean_total)
-        outputs = {w.path.name: str(w.commit()) for w in writers}
-    finally:
-        for w in writers:
-            if not w.committed:
-                w.abort()
+    with rasterio.Env(**GDAL_OPTIONS):
+        result = run_blockwise(
+            layout,
+            season_block_layers,
+            args=(paths, weights, float(etr.sum())),
+            layers=4,
+            dtype=np.float64,
+            targets=[Target(k, w.dtype, w) for k, w in enumerate(writers)],
+            # dask's own nanmean over the whole array: its summation order, hence its last bits,
+            # are the manifest's mean
+            reduce_array=lambda array: [da.nanmean(array[0])],
+            outputs=writers,
+        )
+    (mean_total,) = result.reductions
+    outputs = {w.path.name: str(w.path) for w in writers}
     content = {
         "season_id": season.id,
         "status": "complete",

@@ -117,32 +117,47 @@ def block_masks(
     return masks
 
 
-def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
-    """Sum zone_block over the raster's blocks (one pass, bounded memory)."""
-    import dask
+def zone_sums_of_raster_block(
+    raster: Path, geometries: list, boxes: list, grid, location
+) -> list[np.ndarray]:
+    """A one-item list holding ``zone_block`` of one block of a depth raster [mm]: pixels,
+    valid pixels, zone area [m2], valid area [m2], volume [m3] per zone. A list so that the
+    blocks' sums concatenate in row-major order and are added in that order afterwards."""
     import rasterio
-    from rasterio import features, windows
+    from rasterio import windows
 
+    (r0, r1), (c0, c1) = location
+    window = windows.Window(c0, r0, c1 - c0, r1 - r0)
+    with rasterio.open(raster) as src:
+        depth = src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
+        transform = src.window_transform(window)
+    masks = block_masks(geometries, boxes, transform, depth.shape)
+    return [zone_block(depth, masks, cell_areas(grid, slice(r0, r1)), len(geometries))]
+
+
+def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
+    """Sum zone_block over the raster's blocks of ``chunk`` pixels (one pass, bounded memory):
+    per zone pixels, valid pixels, area [m2], valid area [m2], volume [m3]."""
+    import operator
+
+    import rasterio
+    from rasterio import features
+
+    from ..io.engine import BlockLayout, run_blockwise
     from ..io.grid import Grid
 
     with rasterio.open(raster) as src:
         grid = Grid(src.crs, src.transform, src.width, src.height)
     boxes = [features.bounds(g) for g in geometries]
-
-    def task(r0, r1, c0, c1):
-        window = windows.Window(c0, r0, c1 - c0, r1 - r0)
-        with rasterio.open(raster) as src:
-            depth = src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
-            transform = src.window_transform(window)
-        masks = block_masks(geometries, boxes, transform, depth.shape)
-        return zone_block(depth, masks, cell_areas(grid, slice(r0, r1)), len(geometries))
-
-    parts = [
-        dask.delayed(task)(r0, min(r0 + chunk, grid.height), c0, min(c0 + chunk, grid.width))
-        for r0 in range(0, grid.height, chunk)
-        for c0 in range(0, grid.width, chunk)
-    ]
-    return np.sum(dask.compute(*parts), axis=0)
+    result = run_blockwise(
+        BlockLayout(grid.height, grid.width, chunk),
+        zone_sums_of_raster_block,
+        args=(raster, geometries, boxes, grid),
+        combine=operator.add,  # concatenates the blocks' one-item lists, in row-major order
+    )
+    # added block after block in row-major order, whatever the engine's reduction tree: the
+    # totals' last bits do not depend on how the blocks were combined
+    return np.sum(result.summary, axis=0)
 
 
 def zone_rows(ids: list[str], totals: np.ndarray, variable: str) -> list[dict]:
