@@ -220,10 +220,10 @@ def pipeline_phase(
     timed)."""
     import dask
 
-    from .scene.run import RunSettings, run_scene
+    from .scene.run import RunOptions, run_scene
 
     recipe, table = _load(recipe_path)
-    settings = RunSettings(out_dir=out_dir, chunk_size=chunk, tile_size=256, stac=False)
+    settings = RunOptions(out_dir=out_dir, chunk_size=chunk, tile_size=256, stac=False)
     if workers:
         from .io.cluster import dask_cluster
 

@@ -170,10 +170,10 @@ def _run(
 ) -> None:
     """The run command's work (inside the chosen dask scheduler)."""
     from .recipe import resolve_path
-    from .scene.run import RunSettings
+    from .scene.run import RunOptions
 
     parsed, table = _recipe_and_classes(recipe)
-    settings = RunSettings(
+    settings = RunOptions(
         out_dir=out_dir if out_dir is not None else resolve_path(parsed, parsed.run.out),
         chunk_size=chunk_size or parsed.run.chunk_size,
         tile_size=tile_size or parsed.run.tile_size,

@@ -24,15 +24,13 @@ from .io.paths import is_remote
 from .io.writers import write_text_atomic
 from .methods import METHODS
 from .recipe import Recipe, Scene, resolve_raster_path
-from .scene.run import RunSettings, run_scene
+from .scene.run import RunOptions, run_scene
 from .scene.summaries import rows_to_csv
 
 BATCH_TABLE = "batch.csv"
 
 
-def scene_fingerprint(
-    recipe: Recipe, scene: Scene, table: ClassTable, settings: RunSettings
-) -> str:
+def scene_fingerprint(recipe: Recipe, scene: Scene, table: ClassTable, settings: RunOptions) -> str:
     """Hash of everything that decides a scene's outputs (see module docstring)."""
     files = {}
     for key, value in json.loads(scene.inputs.model_dump_json()).items():
@@ -116,7 +114,7 @@ class SceneOutcome:
 
 
 def run_batch(
-    recipe: Recipe, table: ClassTable, settings: RunSettings, report=None, force: bool = False
+    recipe: Recipe, table: ClassTable, settings: RunOptions, report=None, force: bool = False
 ) -> list[SceneOutcome]:
     """Run every scene; a failing scene is reported and the others go on.
 
@@ -172,7 +170,7 @@ class RecipeOutcome:
 def run_recipe(
     recipe: Recipe,
     table: ClassTable,
-    settings: RunSettings,
+    settings: RunOptions,
     on_scene=None,
     on_season=None,
     force: bool = False,

@@ -124,7 +124,7 @@ def test_failed_cog_conversion_leaves_nothing_under_a_final_name(tmp_path, monke
 
     monkeypatch.setattr(outputs, "write_cog", failing)
     recipe = parse_recipe(demo_recipe_dict())
-    settings = pipeline.RunSettings(
+    settings = pipeline.RunOptions(
         out_dir=tmp_path / "out", chunk_size=CHUNK, tile_size=100, cog=True, zarr=True
     )
     with pytest.raises(OutputError, match="no space left"):
@@ -370,9 +370,7 @@ def test_failed_pass_two_leaves_no_zarr_behind(tmp_path, monkeypatch):
 
     monkeypatch.setattr(blocks, "pass2_block", failing)
     recipe = parse_recipe(demo_recipe_dict())
-    settings = pipeline.RunSettings(
-        out_dir=tmp_path / "out", chunk_size=64, tile_size=64, zarr=True
-    )
+    settings = pipeline.RunOptions(out_dir=tmp_path / "out", chunk_size=64, tile_size=64, zarr=True)
     with pytest.raises(OutputError, match="disk full"):
         pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)
     assert sorted(p.name for p in (tmp_path / "out" / SCENE).iterdir()) == []
@@ -390,7 +388,7 @@ def test_missing_zarr_package_is_named_before_any_work(monkeypatch, tmp_path):
 
     monkeypatch.setattr(builtins, "__import__", no_zarr)
     recipe = parse_recipe(demo_recipe_dict())
-    settings = pipeline.RunSettings(
+    settings = pipeline.RunOptions(
         out_dir=tmp_path / "out", chunk_size=CHUNK, tile_size=100, zarr=True
     )
     with pytest.raises(
@@ -495,7 +493,7 @@ def test_zarr_is_filled_by_the_same_compute_without_recomputing_blocks(tmp_path,
 
     monkeypatch.setattr(blocks, "pass2_block", counting)
     recipe = parse_recipe(demo_recipe_dict())
-    settings = pipeline.RunSettings(
+    settings = pipeline.RunOptions(
         out_dir=tmp_path / "out", chunk_size=128, tile_size=100, zarr=True, quicklook=False
     )
     pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)

@@ -54,8 +54,9 @@ from .summaries import (
 
 
 @dataclass
-class RunSettings:
-    """Chunking and output choices for one run (CLI options override the recipe)."""
+class RunOptions:
+    """Chunking and output choices for one run: the recipe's `[run]` table (`recipe.RunSettings`)
+    with the command line's options applied."""
 
     out_dir: Path
     chunk_size: int
@@ -93,7 +94,7 @@ def run_scene(
     recipe: Recipe,
     scene: Scene,
     table: ClassTable,
-    settings: RunSettings,
+    settings: RunOptions,
     fingerprint: str | None = None,
 ) -> SceneResult:
     """Run one scene end to end and return where its outputs are."""
@@ -270,7 +271,7 @@ def _second_pass(
     calibrated: Calibrated,
     scene: Scene,
     table: ClassTable,
-    settings: RunSettings,
+    settings: RunOptions,
     out_dir: Path,
 ) -> SecondPass:
     """Pass 2: every flux per block, written to every output, with the tile and class summaries
@@ -378,7 +379,7 @@ def _write_summaries(
     scene: Scene,
     files: SceneFiles,
     table: ClassTable,
-    settings: RunSettings,
+    settings: RunOptions,
     second: SecondPass,
     out_dir: Path,
 ) -> tuple[dict[str, Path], list[dict]]:

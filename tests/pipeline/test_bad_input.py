@@ -166,7 +166,7 @@ def test_crash_while_writing_leaves_no_final_outputs(tmp_path, monkeypatch):
     monkeypatch.setattr(blocks, "pass2_block", failing)
     data = demo_recipe_dict()
     recipe = parse_recipe(data)
-    settings = pipeline.RunSettings(out_dir=tmp_path / "out", chunk_size=64, tile_size=64)
+    settings = pipeline.RunOptions(out_dir=tmp_path / "out", chunk_size=64, tile_size=64)
     with pytest.raises(OutputError, match="disk full"):
         pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)
     assert calls["n"] >= 3

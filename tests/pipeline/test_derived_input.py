@@ -14,7 +14,7 @@ import rasterio
 from rasterbudget.catalog.classes import load_class_table
 from rasterbudget.catalog.inputs import INPUTS
 from rasterbudget.recipe import parse_recipe
-from rasterbudget.scene.run import RunSettings, run_scene
+from rasterbudget.scene.run import RunOptions, run_scene
 
 from ..conftest import TINY, demo_recipe_dict
 
@@ -23,7 +23,7 @@ def _run(data: dict, out):
     # with one NDVI everywhere, both anchors must accept it
     data["scene"][0]["anchors"] = {"cold_min_ndvi": 0.4, "hot_max_ndvi": 0.6}
     recipe = parse_recipe(data)
-    settings = RunSettings(out_dir=out, chunk_size=128, tile_size=64, quicklook=False)
+    settings = RunOptions(out_dir=out, chunk_size=128, tile_size=64, quicklook=False)
     result = run_scene(recipe, recipe.scene[0], load_class_table(), settings)
     with rasterio.open(result.outputs["ground_heat_flux"]) as src:
         return src.read(1)

@@ -45,7 +45,7 @@ def test_each_input_is_read_twice_and_each_block_computed_once(tmp_path, monkeyp
     monkeypatch.setattr(blocks, "pass1_block", pass1)
     monkeypatch.setattr(blocks, "pass2_block", pass2)
     recipe = parse_recipe(demo_recipe_dict())
-    settings = pipeline.RunSettings(
+    settings = pipeline.RunOptions(
         out_dir=tmp_path, chunk_size=96, tile_size=tile_size, quicklook=True
     )
     result = pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)
