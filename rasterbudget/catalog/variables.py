@@ -28,8 +28,9 @@ class Variable:
     name: str  # file stem and band name
     units: str
     description: str
-    group: str  # "flux", "component", "reference", "ensemble", "qa", "internal"
+    group: str  # "flux", "component", "reference", "ensemble", "qa", "internal", "season", ...
     dtype: str = "float32"
+    nodata: float | None = float("nan")  # None: no nodata value (QA: 0 means "no flag")
     #: exact summaries: histogram range and bin width (low, high, step), or None
     histogram: tuple[float, float, float] | None = None
     #: quick-look panel: (matplotlib colour map, fixed (vmin, vmax) or None), or None
@@ -116,9 +117,40 @@ _ROWS = (
         "ensemble",
         histogram=(0.0, 20.0, 0.01),
     ),
-    Variable("qa_flags", "bitmask", "QA flags, bits in the README", "qa", dtype="uint16"),
+    Variable(
+        "qa_flags", "bitmask", "QA flags, bits in the README", "qa", dtype="uint16", nodata=None
+    ),
     # carried through pass 2 for the per-class summaries, never written
     Variable("land_cover_code", "1", "land-cover class code", "internal"),
+    # season totals ({start}, {end}, {fraction} filled per season)
+    Variable("et_season", "mm", "ET {start} to {end}", "season"),
+    Variable(
+        "mean_fraction",
+        "1",
+        "season mean {fraction}, weighted by daily reference ET (et_season / reference ET)",
+        "season",
+    ),
+    Variable("scene_count", "1", "valid scenes per pixel", "season", dtype="uint8", nodata=255),
+    Variable(
+        "season_qa",
+        "bitmask",
+        "1: filled from neighbouring scenes, 2: no valid scene",
+        "season",
+        dtype="uint8",
+        nodata=255,
+    ),
+    # comparisons ({units}: those of the compared rasters)
+    Variable("difference", "{units}", "current - previous", "comparison"),
+    Variable("percent_change", "%", "100 (current - previous) / previous", "comparison"),
+    Variable("standardized_anomaly", "1", "(current - baseline mean) / baseline std", "comparison"),
+    Variable(
+        "drought_category",
+        "class",
+        "1 extremely dry ... 4 near normal ... 7 extremely wet (McKee et al. 1993 classes)",
+        "comparison",
+        dtype="uint8",
+        nodata=0,
+    ),
 )
 
 VARIABLES: dict[str, Variable] = {v.name: v for v in _ROWS}

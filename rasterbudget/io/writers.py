@@ -15,6 +15,7 @@ import numpy as np
 import rasterio
 from rasterio.windows import Window
 
+from ..catalog.variables import VARIABLES
 from .grid import Grid
 
 PARTIAL_SUFFIX = ".partial"
@@ -99,6 +100,34 @@ class AtomicRaster:
     temporary file. Finishing all files before committing any means a failed conversion leaves no
     final name behind.
     """
+
+    @classmethod
+    def for_variable(
+        cls,
+        name: str,
+        out_dir: Path,
+        grid: Grid,
+        block_size: int,
+        tags: dict | None = None,
+        fill: dict[str, str] | None = None,
+        **options,
+    ) -> AtomicRaster:
+        """The writer of a catalogue variable (``catalog.variables``): ``OUT/<name>.tif`` with its
+        data type, nodata, units and description (``fill`` completes their placeholders)."""
+        v = VARIABLES[name]
+        fill = fill or {}
+        return cls(
+            Path(out_dir) / f"{name}.tif",
+            grid,
+            v.dtype,
+            v.nodata,
+            block_size,
+            name,
+            v.units.format(**fill),
+            v.description.format(**fill),
+            tags,
+            **options,
+        )
 
     def __init__(
         self,

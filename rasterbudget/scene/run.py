@@ -345,22 +345,11 @@ def _open_outputs(written, variables, scene, settings, out_dir, layout, ctx) -> 
     names = (*written, QA_OUTPUT)
     writers, targets = [], []
     for name in names:
-        v = VARIABLES[name]
-        writer = AtomicRaster(
-            out_dir / f"{name}.tif",
-            grid,
-            v.dtype,
-            np.nan if v.dtype == "float32" else None,  # QA: 0 means "no flag", not nodata
-            block,
-            name,
-            v.units,
-            v.description,
-            tags,
-            cog=settings.cog,
-            compression=settings.compression,
+        writer = AtomicRaster.for_variable(
+            name, out_dir, grid, block, tags, cog=settings.cog, compression=settings.compression
         )
         writers.append(writer)
-        targets.append(Target(variables.index(name), v.dtype, writer))
+        targets.append(Target(variables.index(name), writer.dtype, writer))
     if settings.zarr:
         from ..io.cloud import ZARR_NAME, AtomicZarr
 

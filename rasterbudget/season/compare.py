@@ -219,38 +219,12 @@ def zone_sums_of_block(
     return [zone_comparison_sums(picked, category is not None, masks, areas, len(geometries))]
 
 
-def run_compare(
-    current: Path,
-    out_dir: Path,
-    previous: Path | None = None,
-    baseline: list[Path] = (),
-    chunk: int = 1024,
-    tile_size: int = 256,
-    zones: tuple[Path, str] | None = None,
-    label: str | None = None,
-) -> dict:
-    """Write comparison rasters, tile summaries and (optionally) per-zone tables into ``out_dir``.
-
-    One chunked pass and one dask compute: the rasters, the tile statistics, the category counts
-    and the per-zone sums come from the same blocks. Returns a summary (also ``compare.json``).
-    """
-    import operator
-    from functools import partial
-
-    import dask.array as da
+def _compared_grid(current: Path, previous: Path | None, baseline: list[Path]):
+    """The grid, units and variable name of the compared rasters; refuses a missing raster or
+    one off the grid of ``current``."""
     import rasterio
-    from rasterio import features
 
-    from ..io.engine import BlockLayout, Target, Tiles, run_blockwise
-    from ..io.grid import GDAL_OPTIONS, Grid
-    from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
-    from ..scene.summaries import (
-        rows_to_csv,
-        tile_layout,
-        tile_rows,
-        tile_statistics,
-        tiles_geojson,
-    )
+    from ..io.grid import Grid
 
     paths = [current, *([previous] if previous else []), *baseline]
     for p in paths:
@@ -274,6 +248,90 @@ def run_compare(
                     f"raster {p} is not on the grid of {current}; compare outputs made on one "
                     "target grid ([scene.grid])."
                 )
+    return grid, units, variable
+
+
+def _write_tables(
+    summary: dict,
+    out_dir: Path,
+    grid,
+    result,
+    names: list[str],
+    summarised: list[str],
+    tile_size: int,
+    zone_tables: tuple | None,
+) -> None:
+    """tiles.csv/geojson, categories.csv and zones.csv/geojson of a comparison; listed in (and,
+    for categories and zones, added to) ``summary``."""
+    from ..io.writers import write_text_atomic
+    from ..scene.summaries import rows_to_csv, tile_layout, tile_rows, tiles_geojson
+
+    tile_stats = np.array([[np.asarray(t) for t in row] for row in result.tiles])
+    tiles = tile_rows(tile_stats, summarised, tile_layout(grid, tile_size))
+    write_text_atomic(out_dir / "tiles.csv", rows_to_csv(tiles))
+    write_text_atomic(out_dir / "tiles.geojson", tiles_geojson(tiles, grid.crs.to_string()))
+    summary["outputs"] += ["tiles.csv", "tiles.geojson"]
+    with_category = "drought_category" in names
+    if with_category:
+        counts = result.reductions
+        valid = sum(int(c) for c in counts[1:])
+        share = [
+            {
+                "code": c,
+                "category": CATEGORIES[c],
+                "pixels": int(counts[c]),
+                "share_of_valid_area": int(counts[c]) / valid if valid else float("nan"),
+            }
+            for c in range(1, 8)
+        ]
+        write_text_atomic(out_dir / "categories.csv", rows_to_csv(share))
+        summary["categories"] = share
+        summary["outputs"].append("categories.csv")
+    if zone_tables is not None:
+        from .zones import write_zone_tables
+
+        zone_ids, zone_props, zone_original = zone_tables
+        totals = np.sum(result.summary, axis=0)
+        float_names = [n for n in ZONE_VARIABLES if n in names]
+        zone_table = zone_comparison_rows(
+            zone_ids, totals, float_names, with_category, summary["units"]
+        )
+        write_zone_tables(out_dir, zone_table, zone_props, zone_original)
+        summary["zones"] = zone_table
+        summary["outputs"] += ["zones.csv", "zones.geojson"]
+
+
+def run_compare(
+    current: Path,
+    out_dir: Path,
+    previous: Path | None = None,
+    baseline: list[Path] = (),
+    chunk: int = 1024,
+    tile_size: int = 256,
+    zones: tuple[Path, str] | None = None,
+    label: str | None = None,
+) -> dict:
+    """Write comparison rasters, tile summaries and (optionally) per-zone tables into ``out_dir``.
+
+    One chunked pass and one dask compute: the rasters, the tile statistics, the category counts
+    and the per-zone sums come from the same blocks. Returns a summary (also ``compare.json``).
+    """
+    import operator
+    from functools import partial
+
+    import dask.array as da
+    import rasterio
+    from rasterio import features
+
+    from ..catalog.variables import VARIABLES
+    from ..io.engine import BlockLayout, Target, Tiles, run_blockwise
+    from ..io.grid import GDAL_OPTIONS
+    from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
+    from ..scene.summaries import (
+        tile_statistics,
+    )
+
+    grid, units, variable = _compared_grid(current, previous, baseline)
     if previous is None and len(baseline) < 2:
         raise InputRasterError(
             "give --previous for a difference, or at least two --baseline "
@@ -296,30 +354,11 @@ def run_compare(
 
     out_dir.mkdir(parents=True, exist_ok=True)
     remove_stale_partials(out_dir)
-    described = {
-        "difference": (units, "current - previous"),
-        "percent_change": ("%", "100 (current - previous) / previous"),
-        "standardized_anomaly": ("1", "(current - baseline mean) / baseline std"),
-        "drought_category": (
-            "class",
-            "1 extremely dry ... 4 near normal ... 7 extremely wet (McKee et al. 1993 classes)",
-        ),
-    }
-    written = [n for n in names if n in described]
-    writers, targets = [], []
-    for name in written:
-        dtype = "uint8" if name == "drought_category" else "float32"
-        writer = AtomicRaster(
-            out_dir / f"{name}.tif",
-            grid,
-            dtype,
-            0 if dtype == "uint8" else np.nan,
-            block,
-            name,
-            *described[name],
-        )
-        writers.append(writer)
-        targets.append(Target(names.index(name), dtype, writer))
+    written = [n for n in names if n in VARIABLES and VARIABLES[n].group == "comparison"]
+    writers = [
+        AtomicRaster.for_variable(n, out_dir, grid, block, fill={"units": units}) for n in written
+    ]
+    targets = [Target(names.index(w.path.stem), w.dtype, w) for w in writers]
     summarised = [n for n in names if n != "drought_category"]
     zone_sums = None
     if zone_ids:
@@ -352,9 +391,7 @@ def run_compare(
             ),
             outputs=writers,
         )
-    counts = result.reductions if with_category else None
-    zone_parts = result.summary
-    tile_stats = result.tiles
+    zone_tables = (zone_ids, zone_props, zone_original) if zone_ids else None
     summary: dict = {
         "comparison": label or out_dir.name,
         "variable": variable,
@@ -364,33 +401,6 @@ def run_compare(
         "baseline": [str(p) for p in baseline],
         "outputs": [f"{n}.tif" for n in written],
     }
-    tile_stats = np.array([[np.asarray(t) for t in row] for row in tile_stats])
-    tiles = tile_rows(tile_stats, summarised, tile_layout(grid, tile_size))
-    write_text_atomic(out_dir / "tiles.csv", rows_to_csv(tiles))
-    write_text_atomic(out_dir / "tiles.geojson", tiles_geojson(tiles, grid.crs.to_string()))
-    summary["outputs"] += ["tiles.csv", "tiles.geojson"]
-    if counts is not None:
-        valid = sum(int(c) for c in counts[1:])
-        share = [
-            {
-                "code": c,
-                "category": CATEGORIES[c],
-                "pixels": int(counts[c]),
-                "share_of_valid_area": int(counts[c]) / valid if valid else float("nan"),
-            }
-            for c in range(1, 8)
-        ]
-        write_text_atomic(out_dir / "categories.csv", rows_to_csv(share))
-        summary["categories"] = share
-        summary["outputs"].append("categories.csv")
-    if zone_ids:
-        totals = np.sum(zone_parts, axis=0)
-        float_names = [n for n in ZONE_VARIABLES if n in names]
-        zone_table = zone_comparison_rows(zone_ids, totals, float_names, with_category, units)
-        from .zones import write_zone_tables
-
-        write_zone_tables(out_dir, zone_table, zone_props, zone_original)
-        summary["zones"] = zone_table
-        summary["outputs"] += ["zones.csv", "zones.geojson"]
+    _write_tables(summary, out_dir, grid, result, names, summarised, tile_size, zone_tables)
     write_text_atomic(out_dir / "compare.json", json.dumps(_json_ready(summary), indent=2) + "\n")
     return summary

@@ -230,51 +230,10 @@ def run_season(recipe, season, settings) -> dict:
     remove_stale_partials(out_dir)
     layout = BlockLayout.over(grid, settings.chunk_size)
     block = block_size_for(layout.chunk)
+    fill = {"start": season.start, "end": season.end, "fraction": stem}
     writers = [
-        AtomicRaster(
-            out_dir / "et_season.tif",
-            grid,
-            "float32",
-            np.nan,
-            block,
-            "et_season",
-            "mm",
-            f"ET {season.start} to {season.end}",
-            {"season": season.id},
-        ),
-        AtomicRaster(
-            out_dir / "mean_fraction.tif",
-            grid,
-            "float32",
-            np.nan,
-            block,
-            "mean_fraction",
-            "1",
-            f"season mean {stem}, weighted by daily reference ET (et_season / reference ET)",
-            {"season": season.id},
-        ),
-        AtomicRaster(
-            out_dir / "scene_count.tif",
-            grid,
-            "uint8",
-            255,
-            block,
-            "scene_count",
-            "1",
-            "valid scenes per pixel",
-            {"season": season.id},
-        ),
-        AtomicRaster(
-            out_dir / "season_qa.tif",
-            grid,
-            "uint8",
-            255,
-            block,
-            "season_qa",
-            "bitmask",
-            "1: filled from neighbouring scenes, 2: no valid scene",
-            {"season": season.id},
-        ),
+        AtomicRaster.for_variable(name, out_dir, grid, block, {"season": season.id}, fill)
+        for name in ("et_season", "mean_fraction", "scene_count", "season_qa")
     ]
     with rasterio.Env(**GDAL_OPTIONS):
         result = run_blockwise(
