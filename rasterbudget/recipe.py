@@ -2,7 +2,9 @@
 
 A recipe holds a ``[run]`` table, an optional ``[defaults]`` table that every scene inherits (any
 scene key), and one ``[[scene]]`` table per scene. Units sit in the key names (``_c``, ``_pct``,
-``_m_s`` ...); conversion to kelvin and SI happens here, at the boundary, and nowhere else.
+``_m_s`` ...); the station's numbers become SI scene constants in ``scene.constants`` and gridded
+weather rasters become SI quantities as they are read (``catalog.inputs``); nothing past those
+two boundaries sees a recipe unit.
 """
 
 from __future__ import annotations

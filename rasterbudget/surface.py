@@ -99,6 +99,68 @@ def land_cover_codes(land_cover: np.ndarray) -> np.ndarray:
     return np.where(ok, land_cover, 0).astype(np.intp)
 
 
+def input_qa(
+    lookups: ClassLookups,
+    codes: np.ndarray,
+    albedo: np.ndarray,
+    surface_temperature: np.ndarray,
+    land_cover: np.ndarray,
+    ndvi: np.ndarray | None,
+    elevation: np.ndarray | None,
+    weather: dict[str, np.ndarray],
+    masked: np.ndarray | None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """QA bits that the inputs alone decide (missing, masked, implausible Ts, albedo outside its
+    class range, unknown class, class with an unreliable residual), and where an input is
+    missing."""
+    known = lookups.known[codes] & np.isfinite(land_cover)
+    missing = ~np.isfinite(albedo) | ~np.isfinite(surface_temperature) | ~np.isfinite(land_cover)
+    if ndvi is not None:
+        missing |= ~np.isfinite(ndvi)
+    if elevation is not None:
+        missing |= ~np.isfinite(elevation)
+    for values in weather.values():
+        missing |= ~np.isfinite(values)
+    t_low, t_high = PLAUSIBLE_SURFACE_TEMPERATURE
+    with np.errstate(invalid="ignore"):
+        implausible_ts = np.isfinite(surface_temperature) & (
+            (surface_temperature < t_low) | (surface_temperature > t_high)
+        )
+        albedo_out = (
+            np.isfinite(albedo)
+            & known
+            & ((albedo < lookups.albedo_min[codes]) | (albedo > lookups.albedo_max[codes]))
+        )
+
+    qa = np.zeros(albedo.shape, dtype=np.uint16)
+    qa |= np.where(missing, np.uint16(QA.INPUT_MISSING), np.uint16(0))
+    if masked is not None:
+        qa |= np.where(masked, np.uint16(QA.MASKED), np.uint16(0))
+    qa |= np.where(implausible_ts, np.uint16(QA.SURFACE_TEMPERATURE_IMPLAUSIBLE), np.uint16(0))
+    qa |= np.where(albedo_out, np.uint16(QA.ALBEDO_OUT_OF_CLASS_RANGE), np.uint16(0))
+    qa |= np.where(~known & np.isfinite(land_cover), np.uint16(QA.UNKNOWN_LAND_COVER), np.uint16(0))
+    qa |= np.where(
+        known & ~lookups.residual_reliable[codes], np.uint16(QA.RESIDUAL_UNRELIABLE_CLASS), 0
+    ).astype(np.uint16)
+    return qa, missing
+
+
+def net_radiation_daily_block(
+    c: SceneConstants, latitude: np.ndarray, elevation: np.ndarray, albedo: np.ndarray
+) -> np.ndarray:
+    """FAO-56 daily net radiation of each pixel (eqs. 21, 34-40) with its own albedo and the
+    day's station shortwave (as Rs/Rso) or sunshine hours. [MJ m-2 d-1]"""
+    ra = extraterrestrial_radiation_daily(latitude, c.day_of_year)
+    rso = radiation.clear_sky_shortwave_daily(ra, elevation)
+    if c.daily_clearness is not None:
+        rs = c.daily_clearness * rso
+    else:
+        n_max = daylight_hours(latitude, c.day_of_year)
+        rs = radiation.shortwave_daily_from_sunshine(ra, np.minimum(c.sunshine_hours, n_max), n_max)
+    rnl = radiation.net_longwave_daily(c.tmax, c.tmin, c.vapour_pressure_daily, rs, rso)
+    return radiation.net_radiation_daily(albedo, rs, rnl)
+
+
 def surface_block(
     c: SceneConstants,
     lookups: ClassLookups,
@@ -144,36 +206,10 @@ def surface_block(
     ``surface_lapse_rate``) [K], ``cold_candidate`` and ``hot_candidate`` (bool).
     """
     codes = land_cover_codes(land_cover)
-    known = lookups.known[codes] & np.isfinite(land_cover)
-    missing = ~np.isfinite(albedo) | ~np.isfinite(surface_temperature) | ~np.isfinite(land_cover)
-    if ndvi is not None:
-        missing |= ~np.isfinite(ndvi)
-    if elevation is not None:
-        missing |= ~np.isfinite(elevation)
     weather = weather or {}
-    for values in weather.values():
-        missing |= ~np.isfinite(values)
-    t_low, t_high = PLAUSIBLE_SURFACE_TEMPERATURE
-    with np.errstate(invalid="ignore"):
-        implausible_ts = np.isfinite(surface_temperature) & (
-            (surface_temperature < t_low) | (surface_temperature > t_high)
-        )
-        albedo_out = (
-            np.isfinite(albedo)
-            & known
-            & ((albedo < lookups.albedo_min[codes]) | (albedo > lookups.albedo_max[codes]))
-        )
-
-    qa = np.zeros(albedo.shape, dtype=np.uint16)
-    qa |= np.where(missing, np.uint16(QA.INPUT_MISSING), np.uint16(0))
-    if masked is not None:
-        qa |= np.where(masked, np.uint16(QA.MASKED), np.uint16(0))
-    qa |= np.where(implausible_ts, np.uint16(QA.SURFACE_TEMPERATURE_IMPLAUSIBLE), np.uint16(0))
-    qa |= np.where(albedo_out, np.uint16(QA.ALBEDO_OUT_OF_CLASS_RANGE), np.uint16(0))
-    qa |= np.where(~known & np.isfinite(land_cover), np.uint16(QA.UNKNOWN_LAND_COVER), np.uint16(0))
-    qa |= np.where(
-        known & ~lookups.residual_reliable[codes], np.uint16(QA.RESIDUAL_UNRELIABLE_CLASS), 0
-    ).astype(np.uint16)
+    qa, missing = input_qa(
+        lookups, codes, albedo, surface_temperature, land_cover, ndvi, elevation, weather, masked
+    )
 
     z = np.full(albedo.shape, c.station_elevation) if elevation is None else elevation
     omega = local_hour_angle(c.greenwich_hour_angle, longitude)
@@ -244,17 +280,7 @@ def surface_block(
 
     # FAO-56 daily net radiation per pixel (eqs. 21, 34-40) with the pixel's own albedo.
     if daily:
-        ra = extraterrestrial_radiation_daily(latitude, c.day_of_year)
-        rso = radiation.clear_sky_shortwave_daily(ra, z)
-        if c.daily_clearness is not None:
-            rs = c.daily_clearness * rso
-        else:
-            n_max = daylight_hours(latitude, c.day_of_year)
-            rs = radiation.shortwave_daily_from_sunshine(
-                ra, np.minimum(c.sunshine_hours, n_max), n_max
-            )
-        rnl = radiation.net_longwave_daily(c.tmax, c.tmin, c.vapour_pressure_daily, rs, rso)
-        rn_daily = radiation.net_radiation_daily(albedo, rs, rnl)
+        rn_daily = net_radiation_daily_block(c, latitude, z, albedo)
     else:
         rn_daily = np.full(albedo.shape, np.nan)
 
