@@ -49,6 +49,7 @@ __all__ = [
     "sun_direction",
     "sunset_hour_angle",
     "surface_normal",
+    "time_from_sun_angles",
 ]
 
 
@@ -141,6 +142,87 @@ def solar_ephemeris(
         equation_of_time=float(position["equation_of_time"]),
         zenith=float(position["zenith"]),
         azimuth=float(position["azimuth"]),
+    )
+
+
+def time_from_sun_angles(
+    date: datetime,
+    latitude: float,
+    longitude: float,
+    sun_elevation: float,
+    sun_azimuth: float,
+) -> tuple[datetime, float]:
+    r"""The instant of a day at which the sun stood at the given elevation and azimuth.
+
+    For products whose metadata give the sun's angles but not the acquisition time.
+
+    Parameters
+    ----------
+    date : datetime.datetime or datetime.date
+        The UTC day of the acquisition (its time of day, if any, is ignored).
+    latitude, longitude : float
+        The place the angles refer to (a scene's centre), positive north and east. [degrees]
+    sun_elevation : float
+        Sun elevation above the horizon, without refraction. [degrees]
+    sun_azimuth : float
+        Sun azimuth, clockwise from north. [degrees]
+
+    Returns
+    -------
+    time : datetime.datetime
+        The UTC instant (timezone-aware) whose NREL SPA sun direction at the place is closest to
+        the given one, to about a second.
+    mismatch : float
+        The angle between the given and the solved sun directions. A few hundredths of a degree
+        when the angles are the place's own; more when they refer elsewhere (the centre of a full
+        scene for a subset: about 0.25 degrees of sun per 0.25 degrees of longitude). [degrees]
+
+    Notes
+    -----
+    The day's SPA positions (:func:`pvlib.solarposition.get_solarposition`, Reda & Andreas
+    2004) are sampled every 5 minutes; the closest sample is refined by a bounded scalar search
+    (:func:`scipy.optimize.minimize_scalar`) on the great-circle angle between the two sun
+    directions. Elevation and azimuth together fix one instant of the day: elevation alone has
+    a morning and an afternoon solution.
+    """
+    import pandas as pd
+    from pvlib.solarposition import get_solarposition
+    from scipy.optimize import minimize_scalar
+
+    day = pd.Timestamp(date.year, date.month, date.day, tz="UTC")
+    wanted = _unit_vector(np.radians(sun_elevation), np.radians(sun_azimuth))
+
+    def mismatch(seconds) -> np.ndarray:
+        times = pd.DatetimeIndex(day + pd.to_timedelta(np.atleast_1d(seconds), unit="s"))
+        position = get_solarposition(times, latitude, longitude, method="nrel_numpy")
+        got = _unit_vector(
+            np.radians(90.0 - position["zenith"].to_numpy()),
+            np.radians(position["azimuth"].to_numpy()),
+        )
+        cosine = np.clip(np.tensordot(wanted, got, axes=(0, 0)), -1.0, 1.0)
+        return np.degrees(np.arccos(cosine))
+
+    step = 300.0  # [s]
+    samples = np.arange(0.0, 86400.0 + step, step)
+    best = samples[int(np.argmin(mismatch(samples)))]
+    refined = minimize_scalar(
+        lambda t: float(mismatch(t)[0]),
+        bounds=(max(best - step, 0.0), min(best + step, 86400.0)),
+        method="bounded",
+        options={"xatol": 0.5},
+    )
+    instant = (day + pd.Timedelta(seconds=round(float(refined.x)))).to_pydatetime()
+    return instant, float(refined.fun)
+
+
+def _unit_vector(elevation: np.ndarray, azimuth: np.ndarray) -> np.ndarray:
+    """East, north, up components of directions given by elevation and azimuth. [-]"""
+    return np.array(
+        [
+            np.cos(elevation) * np.sin(azimuth),
+            np.cos(elevation) * np.cos(azimuth),
+            np.sin(elevation),
+        ]
     )
 
 

@@ -127,3 +127,50 @@ def test_ephemeris_declination_matches_an_almanac_value():
 )
 def test_local_solar_day_of_year(when, longitude, expected):
     assert solar.local_solar_day_of_year(when, longitude) == expected
+
+
+@pytest.mark.parametrize(
+    ("when", "latitude", "longitude"),
+    [
+        (dt.datetime(2021, 3, 2, 10, 41, 17, tzinfo=dt.UTC), 47.2, 8.5),  # morning
+        (dt.datetime(2021, 3, 2, 14, 5, 50, tzinfo=dt.UTC), 47.2, 8.5),  # afternoon of the same day
+        (dt.datetime(2015, 12, 11, 23, 58, 3, tzinfo=dt.UTC), -33.9, 151.2),  # next local day
+        (dt.datetime(2009, 6, 1, 4, 2, 40, tzinfo=dt.UTC), 64.8, -147.7),  # high latitude
+    ],
+)
+def test_acquisition_time_is_solved_back_from_the_sun_angles(when, latitude, longitude):
+    # the SPA angles of a known instant (pvlib, Reda & Andreas 2004) give that instant back
+    spa = get_solarposition(pd.DatetimeIndex([pd.Timestamp(when)]), latitude, longitude).iloc[0]
+    solved, mismatch = solar.time_from_sun_angles(
+        when, latitude, longitude, 90.0 - spa["zenith"], spa["azimuth"]
+    )
+    assert abs((solved - when).total_seconds()) <= 2.0
+    assert mismatch < 0.001
+
+
+def test_time_of_the_shared_landsat_scene_from_its_sun_angles():
+    """The real ETM+ subset of ../shared/real (path 15 row 32, 20 July 2002) documents its sun
+    elevation (61.4 degrees) and azimuth (125.8 degrees) but not its time (metadata.json). Solved at
+    the subset's centre (40.5235 N, 76.2450 W, PROVENANCE.md): 15:33 UTC, 0.34 degrees from the
+    stated direction; at the estimated full-scene centre (40.3 N, 76.5 W, PROVENANCE.md): 15:34,
+    0.14 degrees. Both near the typical 15:30 UTC overpass the metadata note gives."""
+    import json
+    from pathlib import Path
+
+    folder = (
+        Path(__file__).resolve().parents[2].parent
+        / "shared"
+        / "real"
+        / "landsat7_etm_p015r032_20020720"
+    )
+    facts = json.loads((folder / "metadata.json").read_text())["facts"]
+    elevation = facts["sun_elevation_deg"]["value"]
+    azimuth = facts["sun_azimuth_deg"]["value"]
+    day = dt.date.fromisoformat(facts["acquisition_date"]["value"])
+    solved, mismatch = solar.time_from_sun_angles(day, 40.5235, -76.2450, elevation, azimuth)
+    assert dt.datetime(2002, 7, 20, 15, 31, tzinfo=dt.UTC) <= solved
+    assert solved <= dt.datetime(2002, 7, 20, 15, 35, tzinfo=dt.UTC)
+    assert 0.2 < mismatch < 0.5
+    at_scene_centre, closer = solar.time_from_sun_angles(day, 40.3, -76.5, elevation, azimuth)
+    assert closer < mismatch
+    assert abs((at_scene_centre - solved).total_seconds()) < 180
