@@ -358,6 +358,7 @@ def demo(out_dir: Path) -> None:
     from .demo import (
         SERIES_YEARS,
         make_daily_weather,
+        make_level2_product,
         make_mixed_grid_inputs,
         make_season_series,
         make_tiny_rasters,
@@ -367,6 +368,7 @@ def demo(out_dir: Path) -> None:
     out_dir.mkdir(parents=True, exist_ok=True)
     files = make_tiny_rasters(out_dir)
     files += make_mixed_grid_inputs(out_dir)
+    files += make_level2_product(out_dir)
     files += make_season_series(out_dir)
     files += [make_daily_weather(out_dir, year) for year in SERIES_YEARS]
     files.append(make_zones(out_dir))

@@ -1032,3 +1032,122 @@ def make_zones(out_dir: pathlib.Path) -> pathlib.Path:
     tmp.write_text(json.dumps(collection, indent=1))
     os.replace(tmp, path)
     return path
+
+
+# ----------------------------------------------------------------------------- a Level-2 product
+
+#: File stem of the invented Level-2-style product of the first demo date (not a USGS product).
+PRODUCT_STEM = "KB07_L2SP_033032_20260614_DEMO"
+PRODUCT_FOLDER = "product_l2"
+#: Collection 2 Level-2 scaling the product is written with (product guide, from memory).
+_SR_SCALE, _SR_OFFSET = 2.75e-05, -0.2
+_ST_SCALE, _ST_OFFSET = 0.00341802, 149.0
+#: Bands of the invented ETM+-like product: file suffix -> common name.
+_PRODUCT_BANDS = {"SR_B1": "blue", "SR_B3": "red", "SR_B4": "nir", "SR_B5": "swir1"}
+_PRODUCT_BANDS |= {"SR_B7": "swir2", "ST_B6": "thermal"}
+#: A cloud and its shadow, (row slice, column slice), for the pixel QA band.
+_PRODUCT_CLOUD = (slice(20, 45), slice(300, 340))
+_PRODUCT_SHADOW = (slice(35, 60), slice(270, 310))
+
+
+def _reflectances(albedo: np.ndarray, ndvi: np.ndarray) -> dict[str, np.ndarray]:
+    """Band reflectances that give back the demo's NDVI exactly and its albedo through Liang's
+    (2001) TM/ETM+ weights: red and NIR from the NDVI, blue = SWIR1 = SWIR2 from the rest."""
+    ratio = (1.0 + ndvi) / (1.0 - ndvi)  # NIR / red
+    # red and NIR take most of the albedo, but stay below 0.85 and 0.95 (bright snow)
+    red = np.minimum(
+        0.8 * (albedo + 0.0018) / (0.130 + 0.373 * ratio), np.minimum(0.85, 0.95 / ratio)
+    )
+    nir = red * ratio
+    rest = (albedo + 0.0018 - 0.130 * red - 0.373 * nir) / (0.356 + 0.085 + 0.072)
+    return {"blue": rest, "red": red, "nir": nir, "swir1": rest, "swir2": rest}
+
+
+def make_level2_product(tiny_dir: pathlib.Path) -> list[pathlib.Path]:
+    """Write an invented Landsat Collection 2 Level-2-style product of the first demo date.
+
+    Surface reflectance bands 1, 3, 4, 5, 7 and the surface-temperature band 6 as scaled uint16
+    (0 = fill), a pixel QA band (bit 6 clear; a cloud: bits 1 and 3; its shadow: bit 4) and MTL
+    metadata text in the Collection 2 layout, into ``tiny_dir/product_l2``. The bands are made
+    from the demo's own albedo, NDVI and surface temperature, so the product path reproduces
+    the ready-raster run up to the 16-bit quantisation; every value is invented (the metadata
+    say so in their ORIGIN line).
+    """
+    tiny_dir = pathlib.Path(tiny_dir)
+    folder = tiny_dir / PRODUCT_FOLDER
+    folder.mkdir(parents=True, exist_ok=True)
+    day = DEMO_DATES[0].replace("-", "")
+    with rasterio.open(tiny_dir / f"albedo_{day}.tif") as src:
+        albedo = src.read(1).astype(np.float64)
+    with rasterio.open(tiny_dir / f"ndvi_{day}.tif") as src:
+        ndvi = src.read(1).astype(np.float64)
+    with rasterio.open(tiny_dir / f"surface_temperature_{day}.tif") as src:
+        temperature = src.read(1).astype(np.float64)
+    missing = ~(np.isfinite(albedo) & np.isfinite(ndvi) & np.isfinite(temperature))
+    reflectance = _reflectances(np.nan_to_num(albedo), np.clip(np.nan_to_num(ndvi), -0.9, 0.9))
+    tags = {"DEMO_PRODUCT": "invented Level-2-style product, not USGS data"}
+    files = []
+    for suffix, name in _PRODUCT_BANDS.items():
+        if name == "thermal":
+            dn = np.rint((temperature - _ST_OFFSET) / _ST_SCALE)
+        else:
+            dn = np.rint((reflectance[name] - _SR_OFFSET) / _SR_SCALE)
+        dn = np.where(missing, 0, np.clip(np.nan_to_num(dn), 1, 65535)).astype(np.uint16)
+        path = folder / f"{PRODUCT_STEM}_{suffix}.TIF"
+        _write_geotiff(path, dn, nodata=0, description=suffix, units="DN", tags=tags)
+        files.append(path)
+    qa = np.full(albedo.shape, 1 << 6, dtype=np.uint16)  # clear
+    qa[_PRODUCT_SHADOW] = 1 << 4
+    qa[_PRODUCT_CLOUD] = (1 << 1) | (1 << 3)
+    qa[missing] = 1  # fill
+    path = folder / f"{PRODUCT_STEM}_QA_PIXEL.TIF"
+    _write_geotiff(path, qa, nodata=1, description="QA_PIXEL", units="bits", tags=tags)
+    files.append(path)
+    files.append(_write_product_metadata(folder))
+    return files
+
+
+def _write_product_metadata(folder: pathlib.Path) -> pathlib.Path:
+    """MTL text in the Collection 2 layout for the invented product (sun angles from SPA)."""
+    from .physics.solar import solar_ephemeris
+
+    when = _dt.datetime.fromisoformat(f"{DEMO_DATES[0]}T{DEMO_OVERPASS_UTC}:00+00:00")
+    centre = ([_ORIGIN_X + 200 * _PIXEL_SIZE], [_ORIGIN_Y - 150 * _PIXEL_SIZE])
+    lon, lat = _transform_coords(CRS.from_epsg(_EPSG), CRS.from_epsg(4326), *centre)
+    sun = solar_ephemeris(when, lat[0], lon[0])
+    # MTL keys: band 1 is FILE_NAME_BAND_1, the thermal band FILE_NAME_BAND_ST_B6
+    keys = {s: s[4:] if s.startswith("SR_") else s for s in _PRODUCT_BANDS}
+    names = [f'    FILE_NAME_BAND_{keys[s]} = "{PRODUCT_STEM}_{s}.TIF"' for s in _PRODUCT_BANDS]
+    sr = [keys[s] for s in _PRODUCT_BANDS if s.startswith("SR_")]
+    lines = [
+        "GROUP = LANDSAT_METADATA_FILE",
+        "  GROUP = PRODUCT_CONTENTS",
+        f'    ORIGIN = "Invented demo product of rasterbudget ({DEMO_REGION}); not USGS data"',
+        '    PROCESSING_LEVEL = "L2SP"',
+        *names,
+        f'    FILE_NAME_QUALITY_L1_PIXEL = "{PRODUCT_STEM}_QA_PIXEL.TIF"',
+        "  END_GROUP = PRODUCT_CONTENTS",
+        "  GROUP = IMAGE_ATTRIBUTES",
+        '    SPACECRAFT_ID = "LANDSAT_7"',
+        '    SENSOR_ID = "ETM"',
+        "    WRS_PATH = 33",
+        "    WRS_ROW = 32",
+        f"    DATE_ACQUIRED = {DEMO_DATES[0]}",
+        f'    SCENE_CENTER_TIME = "{DEMO_OVERPASS_UTC}:00.0000000Z"',
+        f"    SUN_AZIMUTH = {sun.azimuth:.8f}",
+        f"    SUN_ELEVATION = {90.0 - sun.zenith:.8f}",
+        "  END_GROUP = IMAGE_ATTRIBUTES",
+        "  GROUP = LEVEL2_SURFACE_REFLECTANCE_PARAMETERS",
+        *[f"    REFLECTANCE_MULT_BAND_{b} = {_SR_SCALE}" for b in sr],
+        *[f"    REFLECTANCE_ADD_BAND_{b} = {_SR_OFFSET}" for b in sr],
+        "  END_GROUP = LEVEL2_SURFACE_REFLECTANCE_PARAMETERS",
+        "  GROUP = LEVEL2_SURFACE_TEMPERATURE_PARAMETERS",
+        f"    TEMPERATURE_MULT_BAND_ST_B6 = {_ST_SCALE}",
+        f"    TEMPERATURE_ADD_BAND_ST_B6 = {_ST_OFFSET}",
+        "  END_GROUP = LEVEL2_SURFACE_TEMPERATURE_PARAMETERS",
+        "END_GROUP = LANDSAT_METADATA_FILE",
+        "END",
+    ]
+    path = folder / f"{PRODUCT_STEM}_MTL.txt"
+    path.write_text("\n".join(lines) + "\n")
+    return path

@@ -88,8 +88,8 @@ UNITS = {"albedo": ("fraction", "percent"), "surface_temperature": ("K", "C")}
 class SceneInputs(_Strict):
     """``[scene.inputs]``: raster paths (relative to the recipe file) or tables with overrides."""
 
-    albedo: str | InputSpec
-    surface_temperature: str | InputSpec
+    albedo: str | InputSpec | None = None  # or derived from [scene.product]
+    surface_temperature: str | InputSpec | None = None  # or from [scene.product]
     land_cover: str | InputSpec
     ndvi: str | InputSpec | None = None
     elevation: str | InputSpec | None = None
@@ -195,6 +195,36 @@ class ResidualSettings(_Strict):
     max_evaporative_fraction: float = Field(1.0, ge=1.0, le=1.3)
 
 
+class ProductSettings(_Strict):
+    """``[scene.product]``: a Landsat Collection 2 Level-2 product as delivered, instead of ready
+    albedo, surface-temperature and NDVI rasters (any of those given in [scene.inputs] wins)."""
+
+    kind: Literal["landsat_level2"] = "landsat_level2"
+    metadata: str | None = None  # the product's MTL (.txt, .json or .xml); bands found beside it
+    sensor: Literal["TM", "ETM", "OLI_TIRS"] | None = None  # needed without metadata
+    # band files by common name (blue, red, nir, swir1, swir2, thermal, pixel_qa), over the
+    # metadata's file names
+    bands: dict[str, str] = {}
+    reflectance_scale: float | None = None  # over the metadata's (or the product default)
+    reflectance_offset: float | None = None
+    temperature_scale: float | None = None
+    temperature_offset: float | None = None
+    mask_clouds: bool = True  # drop fill, dilated cloud, cirrus, cloud and shadow (pixel QA bits)
+
+    @model_validator(mode="after")
+    def _findable(self) -> ProductSettings:
+        if self.metadata is None and self.sensor is None:
+            raise ValueError("give metadata (the product's MTL file), or sensor and bands")
+        unknown = sorted(set(self.bands) - set(PRODUCT_BANDS))
+        if unknown:
+            raise ValueError(f"bands: {unknown} are not band names; use {list(PRODUCT_BANDS)}")
+        return self
+
+
+#: Common names of the product bands a scene can use.
+PRODUCT_BANDS = ("blue", "red", "nir", "swir1", "swir2", "thermal", "pixel_qa")
+
+
 class GridSettings(_Strict):
     """``[scene.grid]``: an explicit target grid instead of the albedo raster's."""
 
@@ -231,6 +261,7 @@ class Scene(_Strict):
     overpass: OverpassWeather
     daily: DailyWeather
     daily_table: str | None = None  # CSV the daily weather was read from (row of the date)
+    product: ProductSettings | None = None
     grid: GridSettings | None = None
     sensible_heat: str = "anchors"  # a registered method (methods.METHODS)
     daily_scaling: Literal["evaporative_fraction", "reference_et_fraction"] = "evaporative_fraction"
@@ -262,8 +293,9 @@ class Scene(_Strict):
     @model_serializer(mode="wrap")
     def _without_empty_tables(self, handler):
         dumped = handler(self)
-        if not dumped.get("method_tables"):
-            dumped.pop("method_tables", None)
+        for key in ("method_tables", "product"):  # left out when unused: manifests as before
+            if not dumped.get(key):
+                dumped.pop(key, None)
         return dumped
 
     def method_settings(self, key: str, model: type[BaseModel]) -> BaseModel:
@@ -276,6 +308,9 @@ class Scene(_Strict):
     def _what_the_choices_need(self) -> Scene:
         """Rules between keys, checked before any pixel is read (run and inspect alike)."""
         method = get_method(self.sensible_heat)
+        for role in ("albedo", "surface_temperature"):
+            if getattr(self.inputs, role) is None and self.product is None:
+                raise ValueError(f"inputs.{role} is missing; give it, or a [scene.product]")
         for table, values in self.method_tables.items():
             owner = next(m for m in METHODS.values() if m.settings_key == table)
             owner.settings_model.model_validate(values)  # errors name the table's keys
@@ -557,6 +592,13 @@ def _with_placeholders(scene: dict, source: str) -> dict:
         for k in GRIDDED_WEATHER:
             if isinstance(overpass.get(k), str):
                 overpass[k] = _fill(overpass[k], f"overpass.{k}", scene, source)
+    product = scene.get("product")
+    if isinstance(product, dict):
+        if isinstance(product.get("metadata"), str):
+            product["metadata"] = _fill(product["metadata"], "product.metadata", scene, source)
+        for name, value in (product.get("bands") or {}).items():
+            if isinstance(value, str):
+                product["bands"][name] = _fill(value, f"product.bands.{name}", scene, source)
     if isinstance(scene.get("daily_table"), str):
         scene["daily_table"] = _fill(scene["daily_table"], "daily_table", scene, source)
     return scene

@@ -8,7 +8,7 @@ it is computed from and how. Scene runs and ``inspect`` list, open and check the
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -41,13 +41,51 @@ class InputRole:
         return f"{self.section}.{self.name}"
 
 
+def _broadband_albedo(blue, red, nir, swir1, swir2):
+    from ..physics.radiometry import albedo_liang_tm_etm
+
+    return albedo_liang_tm_etm(blue, red, nir, swir1, swir2)
+
+
+def _ndvi(red, nir):
+    from ..physics.radiometry import ndvi
+
+    return ndvi(red, nir)
+
+
+_REFLECTANCE_BANDS = ("blue", "red", "nir", "swir1", "swir2")
+
 _ROWS = (
-    InputRole("albedo", "inputs", True, False, "1", "broadband surface albedo", target=True),
+    InputRole(
+        "albedo",
+        "inputs",
+        True,
+        False,
+        "1",
+        "broadband surface albedo",
+        target=True,
+        # from surface reflectance: Liang (2001) TM/ETM+ weights (on OLI: an adaptation)
+        derived_from=_REFLECTANCE_BANDS,
+        derive=_broadband_albedo,
+    ),
     InputRole("surface_temperature", "inputs", True, False, "K", "land-surface temperature"),
     InputRole("land_cover", "inputs", True, True, "code", "land-cover class codes"),
-    InputRole("ndvi", "inputs", False, False, "1", "normalized difference vegetation index"),
+    InputRole(
+        "ndvi",
+        "inputs",
+        False,
+        False,
+        "1",
+        "normalized difference vegetation index",
+        derived_from=("red", "nir"),
+        derive=_ndvi,
+    ),
     InputRole("elevation", "inputs", False, False, "m", "elevation above sea level", halo=1),
     InputRole("cloud_mask", "inputs", False, True, "code", "cloud/QA mask values or bits"),
+    *(
+        InputRole(band, "product", False, False, "1", f"surface reflectance, {band} band")
+        for band in _REFLECTANCE_BANDS
+    ),
     InputRole(
         "air_temperature_c",
         "overpass",
@@ -111,6 +149,11 @@ def derive_inputs(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     return data
 
 
-def target_role() -> str:
-    """The role whose raster gives the target grid."""
-    return next(n for n, r in INPUTS.items() if r.target)
+def target_role(available: Iterable[str] = ()) -> str:
+    """The role whose raster gives the target grid: the target role, or when it is derived and
+    not given, the first of the roles it is derived from among ``available``."""
+    target = next(r for r in INPUTS.values() if r.target)
+    available = set(available)
+    if target.name in available or not available:
+        return target.name
+    return next((n for n in target.derived_from if n in available), target.name)

@@ -10,6 +10,7 @@ from ..catalog.classes import ClassTable
 from ..catalog.inputs import INPUTS, target_role
 from ..io.grid import GDAL_OPTIONS, Grid, check_input, grid_from_settings, target_grid
 from ..recipe import InputSpec, Recipe, Scene, resolve_path, resolve_raster_path
+from .products import ProductInputs, product_inputs
 
 
 @dataclass(frozen=True)
@@ -20,10 +21,18 @@ class SceneFiles:
     specs: dict[str, InputSpec]  # role -> recipe options (scale, offset, units, resampling)
     grid: Grid
     remap: dict[int, int]  # user land-cover code -> class code
+    mask_values: tuple[int, ...] = ()  # cloud-mask values dropped
+    mask_bits: tuple[int, ...] = ()  # cloud-mask bits dropped
+    product: dict | None = None  # the product's facts, for the manifest
 
 
-def input_paths(recipe: Recipe, scene: Scene) -> tuple[dict, dict]:
-    """Every input the scene names, by role (registry order), and its recipe options."""
+def input_paths(
+    recipe: Recipe, scene: Scene, product: ProductInputs | None = None
+) -> tuple[dict, dict]:
+    """Every input the scene names, by role (registry order), and its recipe options; a
+    product's roles fill in what ``[scene.inputs]`` does not give."""
+    if product is None and scene.product is not None:
+        product = product_inputs(recipe, scene.product)
     paths, specs = {}, {}
     gridded = scene.overpass.gridded()
     for role in INPUTS.values():
@@ -31,32 +40,57 @@ def input_paths(recipe: Recipe, scene: Scene) -> tuple[dict, dict]:
             if role.name in gridded:
                 paths[role.name] = resolve_raster_path(recipe, gridded[role.name])
             continue
-        if role.name == "cloud_mask":
-            if scene.inputs.cloud_mask is not None:
-                paths[role.name] = resolve_raster_path(recipe, scene.inputs.cloud_mask.path)
+        if role.name == "cloud_mask" and scene.inputs.cloud_mask is not None:
+            paths[role.name] = resolve_raster_path(recipe, scene.inputs.cloud_mask.path)
             continue
-        spec = scene.inputs.spec(role.name)
+        given = role.section == "inputs" and role.name != "cloud_mask"
+        spec = scene.inputs.spec(role.name) if given else None
         if spec is not None:
             paths[role.name] = resolve_raster_path(recipe, spec.path)
             specs[role.name] = spec
+        elif product is not None and role.name in product.paths:  # given wins over derived
+            paths[role.name] = product.paths[role.name]
+            if role.name in product.specs:
+                specs[role.name] = product.specs[role.name]
     return paths, specs
+
+
+def mask_rule(scene: Scene, product: ProductInputs | None) -> tuple[tuple, tuple]:
+    """The cloud-mask values and bits dropped: the recipe's mask, else the product's QA bits."""
+    if scene.inputs.cloud_mask is not None:
+        mask = scene.inputs.cloud_mask
+        return tuple(mask.drop_values), tuple(mask.drop_bits)
+    if product is not None:
+        return (), product.mask_bits
+    return (), ()
 
 
 def scene_files(recipe: Recipe, scene: Scene, table: ClassTable) -> SceneFiles:
     """The scene's inputs and its target grid: the target input's, or ``[scene.grid]``."""
     import rasterio
 
-    paths, specs = input_paths(recipe, scene)
+    product = product_inputs(recipe, scene.product) if scene.product is not None else None
+    paths, specs = input_paths(recipe, scene, product)
     remap = {}
     if specs["land_cover"].remap is not None:
         from ..catalog.classes import load_remap
 
         remap = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
     with rasterio.Env(**GDAL_OPTIONS):
-        grid = target_grid(paths[target_role()])  # refuses a target without CRS, in any case
+        # refuses a target without CRS, in any case
+        grid = target_grid(paths[target_role(paths)])
         if scene.grid is not None:
             grid = grid_from_settings(scene.grid)
-    return SceneFiles(paths=paths, specs=specs, grid=grid, remap=remap)
+    values, bits = mask_rule(scene, product)
+    return SceneFiles(
+        paths=paths,
+        specs=specs,
+        grid=grid,
+        remap=remap,
+        mask_values=values,
+        mask_bits=bits,
+        product=None if product is None else product.facts,
+    )
 
 
 def check_inputs(files: SceneFiles) -> dict[str, dict]:

@@ -16,7 +16,7 @@ import rasterio
 from rasterio.transform import Affine
 
 from ..catalog.classes import ClassTable
-from ..catalog.inputs import gridded_weather_in_si, target_role
+from ..catalog.inputs import derive_inputs, gridded_weather_in_si, target_role
 from ..io.grid import (
     GDAL_OPTIONS,
     Grid,
@@ -33,7 +33,8 @@ from ..surface import ClassLookups, land_cover_codes, surface_block
 from .blocks import BlockContext, check_input_values, input_stats, mask_pixels, remap_codes
 from .constants import scene_constants, with_weather_at_centre
 from .geometry import pixel_lonlat
-from .inputs import input_paths
+from .inputs import input_paths, mask_rule
+from .products import product_inputs
 
 SAMPLE_SIDE = 1024
 
@@ -56,9 +57,10 @@ def sample_grid(grid: Grid) -> tuple[Grid, int]:
 def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: int) -> list[str]:
     """Lines describing one scene's inputs; raises the run's own error where a run would fail."""
     lines = [f"scene {scene.id}  acquired {scene.acquired_utc.isoformat()}"]
-    paths, specs = input_paths(recipe, scene)
+    product = product_inputs(recipe, scene.product) if scene.product is not None else None
+    paths, specs = input_paths(recipe, scene, product)
     with rasterio.Env(**GDAL_OPTIONS):
-        grid = target_grid(paths[target_role()])
+        grid = target_grid(paths[target_role(paths)])
         if scene.grid is not None:
             grid = grid_from_settings(scene.grid)
         left, bottom, right, top = grid.bounds
@@ -107,6 +109,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
                 data["land_cover"], mapping
             )
         check_input_values(stats, tuple(sources))
+    data = derive_inputs(data)  # albedo and NDVI from a product's bands
     scene, centre = with_weather_at_centre(scene, grid, paths)
     if centre:
         lines.append(
@@ -125,10 +128,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
     lon, lat = pixel_lonlat(ctx.grid, slice(0, coarse.height), slice(0, coarse.width))
     masked = None
     if "cloud_mask" in data:
-        mask_spec = scene.inputs.cloud_mask
-        masked = mask_pixels(
-            data["cloud_mask"], tuple(mask_spec.drop_values), tuple(mask_spec.drop_bits)
-        )
+        masked = mask_pixels(data["cloud_mask"], *mask_rule(scene, product))
         lines.append(f"  cloud/QA mask drops {masked.mean():.1%} of the pixels")
     state = surface_block(
         constants,

@@ -114,6 +114,8 @@ def run_scene(
     scene, centre_values = with_weather_at_centre(scene, files.grid, files.paths)
     constants, facts = scene_constants(scene, files.grid)
     facts["gridded_weather_at_centre"] = centre_values
+    if files.product is not None:
+        facts["product"] = files.product
     method = get_method(scene.sensible_heat)
     layout = BlockLayout.over(files.grid, settings.chunk_size)
     out_dir = settings.out_dir / scene.id
@@ -191,7 +193,6 @@ def _block_context(
 ) -> BlockContext:
     """Everything a block task needs, small and picklable."""
     grid, anchors, overpass = files.grid, scene.anchors, scene.overpass
-    mask = scene.inputs.cloud_mask
     return BlockContext(
         grid=grid,
         constants=constants,
@@ -216,8 +217,8 @@ def _block_context(
             anchors.station_roughness_m,
             anchors.blending_height_m,
         ),
-        mask_values=tuple(mask.drop_values if mask else ()),
-        mask_bits=tuple(mask.drop_bits if mask else ()),
+        mask_values=files.mask_values,
+        mask_bits=files.mask_bits,
         member_air_offsets=tuple(
             m.air_temperature_offset for m in sample_members(scene.uncertainty)
         ),
