@@ -1104,7 +1104,64 @@ def make_level2_product(tiny_dir: pathlib.Path) -> list[pathlib.Path]:
     _write_geotiff(path, qa, nodata=1, description="QA_PIXEL", units="bits", tags=tags)
     files.append(path)
     files.append(_write_product_metadata(folder))
+    files.append(_write_product_item(folder))
     return files
+
+
+#: STAC common names of the invented product's bands.
+_COMMON_NAMES = {"blue": "blue", "red": "red", "nir": "nir08", "swir1": "swir16"}
+_COMMON_NAMES |= {"swir2": "swir22", "thermal": "lwir11"}
+
+
+def _write_product_item(folder: pathlib.Path) -> pathlib.Path:
+    """A STAC Item (1.0, eo and raster extensions) of the invented product, its assets relative."""
+    import json
+
+    assets = {}
+    for suffix, name in _PRODUCT_BANDS.items():
+        scale, offset = (_ST_SCALE, _ST_OFFSET) if name == "thermal" else (_SR_SCALE, _SR_OFFSET)
+        assets[_COMMON_NAMES[name]] = {
+            "href": f"./{PRODUCT_STEM}_{suffix}.TIF",
+            "type": "image/tiff; application=geotiff",
+            "eo:bands": [{"name": suffix, "common_name": _COMMON_NAMES[name]}],
+            "raster:bands": [{"nodata": 0, "scale": scale, "offset": offset}],
+            "roles": ["data"],
+        }
+    assets["qa_pixel"] = {
+        "href": f"./{PRODUCT_STEM}_QA_PIXEL.TIF",
+        "type": "image/tiff; application=geotiff",
+        "roles": ["cloud"],
+    }
+    left, top = _ORIGIN_X, _ORIGIN_Y
+    right, bottom = left + 400 * _PIXEL_SIZE, top - 300 * _PIXEL_SIZE
+    lons, lats = _transform_coords(
+        CRS.from_epsg(_EPSG),
+        CRS.from_epsg(4326),
+        [left, right, right, left],
+        [top, top, bottom, bottom],
+    )
+    ring = [[round(x, 6), round(y, 6)] for x, y in zip(lons, lats, strict=True)]
+    item = {
+        "type": "Feature",
+        "stac_version": "1.0.0",
+        "stac_extensions": [
+            "https://stac-extensions.github.io/eo/v1.1.0/schema.json",
+            "https://stac-extensions.github.io/raster/v1.1.0/schema.json",
+        ],
+        "id": PRODUCT_STEM,
+        "geometry": {"type": "Polygon", "coordinates": [[*ring, ring[0]]]},
+        "bbox": [min(lons), min(lats), max(lons), max(lats)],
+        "properties": {
+            "datetime": f"{DEMO_DATES[0]}T{DEMO_OVERPASS_UTC}:00Z",
+            "instruments": ["etm+"],
+            "description": f"Invented demo product of rasterbudget ({DEMO_REGION}); not USGS data",
+        },
+        "links": [],
+        "assets": assets,
+    }
+    path = folder / f"{PRODUCT_STEM}_stac.json"
+    path.write_text(json.dumps(item, indent=2) + "\n")
+    return path
 
 
 def _write_product_metadata(folder: pathlib.Path) -> pathlib.Path:

@@ -201,6 +201,7 @@ class ProductSettings(_Strict):
 
     kind: Literal["landsat_level2"] = "landsat_level2"
     metadata: str | None = None  # the product's MTL (.txt, .json or .xml); bands found beside it
+    stac_item: str | None = None  # a STAC Item JSON whose assets are the bands (common names)
     sensor: Literal["TM", "ETM", "OLI_TIRS"] | None = None  # needed without metadata
     # band files by common name (blue, red, nir, swir1, swir2, thermal, pixel_qa), over the
     # metadata's file names
@@ -213,8 +214,12 @@ class ProductSettings(_Strict):
 
     @model_validator(mode="after")
     def _findable(self) -> ProductSettings:
-        if self.metadata is None and self.sensor is None:
-            raise ValueError("give metadata (the product's MTL file), or sensor and bands")
+        if self.metadata is None and self.stac_item is None and self.sensor is None:
+            raise ValueError(
+                "give metadata (the product's MTL file), stac_item, or sensor and bands"
+            )
+        if self.metadata is not None and self.stac_item is not None:
+            raise ValueError("give metadata or stac_item, not both")
         unknown = sorted(set(self.bands) - set(PRODUCT_BANDS))
         if unknown:
             raise ValueError(f"bands: {unknown} are not band names; use {list(PRODUCT_BANDS)}")
@@ -594,8 +599,9 @@ def _with_placeholders(scene: dict, source: str) -> dict:
                 overpass[k] = _fill(overpass[k], f"overpass.{k}", scene, source)
     product = scene.get("product")
     if isinstance(product, dict):
-        if isinstance(product.get("metadata"), str):
-            product["metadata"] = _fill(product["metadata"], "product.metadata", scene, source)
+        for key in ("metadata", "stac_item"):
+            if isinstance(product.get(key), str):
+                product[key] = _fill(product[key], f"product.{key}", scene, source)
         for name, value in (product.get("bands") or {}).items():
             if isinstance(value, str):
                 product["bands"][name] = _fill(value, f"product.bands.{name}", scene, source)

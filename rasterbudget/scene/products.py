@@ -57,24 +57,40 @@ class ProductInputs:
 
 def product_inputs(recipe: Recipe, product: ProductSettings) -> ProductInputs:
     """The roles, files and scaling of a Level-2 product (see the module docstring)."""
-    metadata = None
-    if product.metadata is not None:
-        metadata = read_landsat_metadata(resolve_path(recipe, product.metadata))
-    sensor = product.sensor or _sensor_of(metadata)
-    files = _band_files(recipe, product, metadata, sensor)
+    metadata, item_scaling = None, {}
+    if product.stac_item is not None:
+        item = resolve_path(recipe, product.stac_item)
+        sensor_of_item, files, item_scaling = stac_item_bands(item)
+        sensor = product.sensor or sensor_of_item
+        files |= {n: resolve_raster_path(recipe, v) for n, v in product.bands.items()}
+        missing = [n for n in ("blue", "red", "nir", "swir1", "swir2", "thermal") if n not in files]
+        if missing:
+            raise InputValueError(
+                f"STAC item {item} has no asset for the bands {missing} (by common name: blue, "
+                "red, nir08, swir16, swir22, lwir11); give them as product.bands.<name>."
+            )
+    else:
+        if product.metadata is not None:
+            metadata = read_landsat_metadata(resolve_path(recipe, product.metadata))
+        sensor = product.sensor or _sensor_of(metadata)
+        files = _band_files(recipe, product, metadata, sensor)
     facts: dict = {
         "kind": product.kind,
         "metadata": None if metadata is None else str(metadata.path),
+        "stac_item": None if product.stac_item is None else str(item),
         "sensor": sensor,
         "bands": {name: str(path) for name, path in files.items()},
-        "albedo": _ALBEDO_WEIGHTS[sensor],
+        "albedo": _ALBEDO_WEIGHTS.get(sensor, "Liang (2001) TM/ETM+ weights on the item's bands"),
     }
     paths, specs = {}, {}
     for name, path in files.items():
         if name == "pixel_qa":
             continue
         kind = "temperature" if name == "thermal" else "reflectance"
-        scale, offset, source = _scaling(product, metadata, sensor, name, kind)
+        if name in item_scaling and getattr(product, f"{kind}_scale") is None:
+            scale, offset, source = item_scaling[name]
+        else:
+            scale, offset, source = _scaling(product, metadata, sensor, name, kind)
         facts[f"{name}_scaling"] = {"scale": scale, "offset": offset, "source": source}
         role = "surface_temperature" if name == "thermal" else name
         paths[role] = path
@@ -149,3 +165,57 @@ def _scaling(
             return band.l2_scale, band.l2_offset, f"metadata {metadata.path}"
     scale, offset = LEVEL2_DEFAULTS[kind]
     return scale, offset, "Collection 2 Level-2 default (product guide, from memory)"
+
+
+#: STAC band common names (eo:bands / STAC 1.1 bands) -> the product band names used here.
+STAC_COMMON_NAMES = {
+    "blue": "blue",
+    "red": "red",
+    "nir": "nir",
+    "nir08": "nir",
+    "swir16": "swir1",
+    "swir22": "swir2",
+    "lwir": "thermal",
+    "lwir11": "thermal",
+}
+_STAC_INSTRUMENTS = {"oli": "OLI_TIRS", "tirs": "OLI_TIRS", "etm+": "ETM", "etm": "ETM", "tm": "TM"}
+
+
+def stac_item_bands(path: Path) -> tuple[str | None, dict[str, Path | str], dict]:
+    """The sensor, band files and band scaling of a local STAC Item of a Level-2 product.
+
+    Bands are found by their common name (``eo:bands`` of STAC 1.0, ``bands`` with
+    ``eo:common_name`` of STAC 1.1); the thermal band by ``lwir11``/``lwir``, the pixel QA band
+    by the asset key ``qa_pixel``. Scale and offset come from ``raster:bands`` (STAC 1.0) or
+    the band objects (STAC 1.1). Relative hrefs are relative to the item file.
+    """
+    import json
+
+    try:
+        item = json.loads(Path(path).read_text())
+    except (OSError, ValueError) as err:
+        raise InputRasterError(f"STAC item {path} cannot be read as JSON ({err}).") from None
+    if item.get("type") != "Feature" or "assets" not in item:
+        raise InputValueError(f"{path} is not a STAC Item (no Feature with assets).")
+    files: dict[str, Path | str] = {}
+    scaling: dict[str, tuple[float, float, str]] = {}
+    for key, asset in item["assets"].items():
+        href = asset.get("href", "")
+        target = href if "://" in href else Path(path).parent / href
+        if key == "qa_pixel":
+            files["pixel_qa"] = target
+            continue
+        bands = asset.get("bands") or asset.get("eo:bands") or []
+        if len(bands) != 1:
+            continue
+        common = bands[0].get("eo:common_name") or bands[0].get("common_name")
+        name = STAC_COMMON_NAMES.get(common)
+        if name is None:
+            continue
+        files[name] = target
+        raster = (asset.get("raster:bands") or [bands[0]])[0]
+        if "scale" in raster and "offset" in raster:
+            scaling[name] = (float(raster["scale"]), float(raster["offset"]), f"STAC item {path}")
+    instruments = [str(i).lower() for i in item.get("properties", {}).get("instruments", [])]
+    sensor = next((_STAC_INSTRUMENTS[i] for i in instruments if i in _STAC_INSTRUMENTS), None)
+    return sensor, files, scaling

@@ -26,6 +26,7 @@ METADATA = PRODUCT / f"{PRODUCT_STEM}_MTL.txt"
 
 
 def _product_recipe(tmp_path, product: dict, inputs: dict | None = None):
+    tmp_path.mkdir(parents=True, exist_ok=True)
     data = demo_recipe_dict()
     scene = data["scene"][0]
     data["scene"] = [scene]
@@ -125,3 +126,34 @@ def test_the_shipped_product_recipe_runs(tmp_path):
     result = _run(recipe, tmp_path / "out")
     assert result.exit_code == 0, result.output
     assert (tmp_path / "out" / "kessendry_20260614_product" / "et_daily.tif").is_file()
+
+
+def test_a_stac_item_of_the_product_gives_the_same_run_as_its_metadata(tmp_path):
+    item = PRODUCT / f"{PRODUCT_STEM}_stac.json"
+    by_item = _run(_product_recipe(tmp_path / "a", {"stac_item": str(item)}), tmp_path / "item")
+    assert by_item.exit_code == 0, by_item.output
+    by_mtl = _run(_product_recipe(tmp_path / "b", {"metadata": str(METADATA)}), tmp_path / "mtl")
+    assert by_mtl.exit_code == 0, by_mtl.output
+    for name in ("et_daily", "qa_flags", "net_radiation"):
+        np.testing.assert_array_equal(
+            _read(tmp_path / "item" / SCENE, name), _read(tmp_path / "mtl" / SCENE, name)
+        )
+    facts = json.loads((tmp_path / "item" / SCENE / "manifest.json").read_text())
+    product = facts["scene_facts"]["product"]
+    assert product["stac_item"] == str(item) and product["sensor"] == "ETM"
+    assert product["nir_scaling"]["source"] == f"STAC item {item}"
+
+
+def test_a_stac_item_without_a_needed_band_is_refused_in_one_line(tmp_path):
+    item = json.loads((PRODUCT / f"{PRODUCT_STEM}_stac.json").read_text())
+    del item["assets"]["swir16"]
+    for asset in item["assets"].values():
+        asset["href"] = str(PRODUCT / asset["href"])
+    path = tmp_path / "item.json"
+    path.write_text(json.dumps(item))
+    out = tmp_path / "out"
+    result = _run(_product_recipe(tmp_path, {"stac_item": str(path)}), out)
+    assert result.exit_code == 2
+    lines = result.output.strip().splitlines()
+    assert len(lines) == 1 and str(path) in lines[0] and "['swir1']" in lines[0]
+    assert not (out / SCENE).exists()
