@@ -76,6 +76,7 @@ def product_inputs(recipe: Recipe, product: ProductSettings) -> ProductInputs:
         files = _band_files(recipe, product, metadata, sensor)
     facts: dict = {
         "kind": product.kind,
+        "sun_elevation_deg": None if metadata is None else metadata.sun_elevation,
         "metadata": None if metadata is None else str(metadata.path),
         "stac_item": None if product.stac_item is None else str(item),
         "sensor": sensor,

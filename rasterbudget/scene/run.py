@@ -116,6 +116,10 @@ def run_scene(
     facts["gridded_weather_at_centre"] = centre_values
     if files.product is not None:
         facts["product"] = files.product
+        stated = files.product.get("sun_elevation_deg")
+        if stated is not None:  # the product's own sun, against SPA's at the scene centre
+            facts["sun"]["product_elevation_deg"] = stated
+            facts["sun"]["elevation_minus_product_deg"] = facts["sun"]["elevation_deg"] - stated
     method = get_method(scene.sensible_heat)
     layout = BlockLayout.over(files.grid, settings.chunk_size)
     out_dir = settings.out_dir / scene.id

@@ -11,6 +11,7 @@ import json
 import shutil
 
 import numpy as np
+import pytest
 import rasterio
 from click.testing import CliRunner
 
@@ -69,6 +70,10 @@ def test_a_level2_product_reproduces_the_ready_raster_run_outside_its_clouds(tmp
     assert facts["albedo"] == "Liang (2001) TM/ETM+ weights"
     assert facts["red_scaling"]["source"].startswith("metadata ")
     assert facts["cloud_mask_bits"] == [0, 1, 2, 3, 4]
+    # the product states SPA's sun at 17:50 at the grid centre; the recipe says 17:52
+    sun = json.loads((folder / "manifest.json").read_text())["scene_facts"]["sun"]
+    assert sun["product_elevation_deg"] == pytest.approx(67.57101212)
+    assert 0.0 < sun["elevation_minus_product_deg"] < 1.0
 
 
 def test_given_inputs_win_over_the_products(tmp_path):
