@@ -11,7 +11,7 @@ from typing import Any
 
 import numpy as np
 
-from ..catalog.inputs import derive_inputs, gridded_weather_in_si
+from ..catalog.inputs import INPUTS, derive_inputs, gridded_weather_in_si
 from ..catalog.qa import QA
 from ..catalog.variables import QA_OUTPUT
 from ..errors import InputValueError
@@ -141,10 +141,10 @@ def block_state(
 #: (albedo above 1.5, surface temperature below 100 K).
 def input_stats(role: str, values: np.ndarray) -> np.ndarray:
     finite = values[np.isfinite(values)]
-    if role == "albedo":
+    if role == "albedo" or INPUTS[role].section == "product":  # fractions
         suspicious = np.count_nonzero(finite > 1.5)
-    elif role == "surface_temperature":
-        suspicious = np.count_nonzero(finite < 100.0)
+    elif role == "surface_temperature":  # kelvin: below 100 is Celsius, above 1000 counts
+        suspicious = np.count_nonzero((finite < 100.0) | (finite > 1000.0))
     else:
         suspicious = 0
     low = finite.min() if finite.size else np.inf
@@ -208,6 +208,19 @@ def check_input_values(stats: dict, sources: tuple[InputSource, ...]) -> dict:
                 f"albedo raster {source.path} has values up to {high:.3g} (most above 1.5): it "
                 f'looks like percent; set {where} = {{ path = "...", units = "percent" }}, '
                 "or a scale factor."
+            )
+        if INPUTS[source.role].section == "product" and suspicious > 0.5 * n_valid:
+            raise InputValueError(
+                f"{source.role} band {source.path} reads as values up to {high:.3g} (most above "
+                "1.5), not reflectances: it looks like unscaled digital numbers; set "
+                "product.reflectance_scale and product.reflectance_offset (Collection 2 Level-2: "
+                "0.0000275 and -0.2)."
+            )
+        if source.role == "surface_temperature" and suspicious > 0.5 * n_valid and high > 1000:
+            raise InputValueError(
+                f"surface temperature raster {source.path} reads as values up to {high:.6g} "
+                "(most above 1000): it looks like scaled integers; give its scale and offset "
+                "(inputs.surface_temperature, or product.temperature_scale/offset)."
             )
         if source.role == "surface_temperature" and suspicious > 0.5 * n_valid:
             raise InputValueError(

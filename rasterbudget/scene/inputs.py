@@ -32,7 +32,7 @@ def input_paths(
     """Every input the scene names, by role (registry order), and its recipe options; a
     product's roles fill in what ``[scene.inputs]`` does not give."""
     if product is None and scene.product is not None:
-        product = product_inputs(recipe, scene.product)
+        product = product_inputs(recipe, scene.product, scene.acquired_utc)
     paths, specs = {}, {}
     gridded = scene.overpass.gridded()
     for role in INPUTS.values():
@@ -69,7 +69,11 @@ def scene_files(recipe: Recipe, scene: Scene, table: ClassTable) -> SceneFiles:
     """The scene's inputs and its target grid: the target input's, or ``[scene.grid]``."""
     import rasterio
 
-    product = product_inputs(recipe, scene.product) if scene.product is not None else None
+    product = (
+        product_inputs(recipe, scene.product, scene.acquired_utc)
+        if scene.product is not None
+        else None
+    )
     paths, specs = input_paths(recipe, scene, product)
     remap = {}
     if specs["land_cover"].remap is not None:

@@ -57,7 +57,11 @@ def sample_grid(grid: Grid) -> tuple[Grid, int]:
 def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: int) -> list[str]:
     """Lines describing one scene's inputs; raises the run's own error where a run would fail."""
     lines = [f"scene {scene.id}  acquired {scene.acquired_utc.isoformat()}"]
-    product = product_inputs(recipe, scene.product) if scene.product is not None else None
+    product = (
+        product_inputs(recipe, scene.product, scene.acquired_utc)
+        if scene.product is not None
+        else None
+    )
     paths, specs = input_paths(recipe, scene, product)
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths[target_role(paths)])

@@ -9,6 +9,7 @@ defaults, unless the recipe gives them; the manifest records where each fact cam
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from datetime import datetime
 from pathlib import Path
 
 from ..errors import InputRasterError, InputValueError
@@ -55,8 +56,11 @@ class ProductInputs:
     facts: dict = field(default_factory=dict)  # for the manifest, with where each came from
 
 
-def product_inputs(recipe: Recipe, product: ProductSettings) -> ProductInputs:
-    """The roles, files and scaling of a Level-2 product (see the module docstring)."""
+def product_inputs(
+    recipe: Recipe, product: ProductSettings, acquired: datetime | None = None
+) -> ProductInputs:
+    """The roles, files and scaling of a Level-2 product (see the module docstring);
+    ``acquired`` (the scene's time) is checked against the metadata's date."""
     metadata, item_scaling = None, {}
     if product.stac_item is not None:
         item = resolve_path(recipe, product.stac_item)
@@ -72,6 +76,7 @@ def product_inputs(recipe: Recipe, product: ProductSettings) -> ProductInputs:
     else:
         if product.metadata is not None:
             metadata = read_landsat_metadata(resolve_path(recipe, product.metadata))
+            _same_scene(metadata, product, acquired)
         sensor = product.sensor or _sensor_of(metadata)
         files = _band_files(recipe, product, metadata, sensor)
     facts: dict = {
@@ -102,6 +107,25 @@ def product_inputs(recipe: Recipe, product: ProductSettings) -> ProductInputs:
         mask_bits = CLOUD_BITS
         facts["cloud_mask_bits"] = list(CLOUD_BITS)
     return ProductInputs(paths=paths, specs=specs, mask_bits=mask_bits, facts=facts)
+
+
+def _same_scene(
+    metadata: LandsatMetadata, product: ProductSettings, acquired: datetime | None
+) -> None:
+    """Refuse metadata of another day than the scene's, or of another sensor than the recipe's."""
+    stated = metadata.acquisition_date
+    if acquired is not None and stated is not None and abs((acquired.date() - stated).days) > 1:
+        raise InputValueError(
+            f"product metadata {metadata.path} is of {stated}, but the scene is acquired "
+            f"{acquired.date()}: the metadata of another scene? Check product.metadata and "
+            "acquired_utc."
+        )
+    sensor = (metadata.sensor or "").replace("+", "")
+    if product.sensor is not None and sensor and sensor != product.sensor:
+        raise InputValueError(
+            f"product metadata {metadata.path} is of sensor {sensor}, but product.sensor = "
+            f"{product.sensor!r}; remove product.sensor or check the metadata."
+        )
 
 
 def _sensor_of(metadata: LandsatMetadata | None) -> str:

@@ -162,3 +162,41 @@ def test_a_stac_item_without_a_needed_band_is_refused_in_one_line(tmp_path):
     lines = result.output.strip().splitlines()
     assert len(lines) == 1 and str(path) in lines[0] and "['swir1']" in lines[0]
     assert not (out / SCENE).exists()
+
+
+def _refused(tmp_path, product: dict, acquired=None):
+    data_dir = tmp_path / "recipe"
+    recipe = _product_recipe(data_dir, product)
+    if acquired is not None:
+        text = recipe.read_text().replace("2026-06-14T17:52:00Z", acquired)
+        recipe.write_text(text)
+    out = tmp_path / "out"
+    result = _run(recipe, out)
+    assert result.exit_code == 2, result.output
+    lines = result.output.strip().splitlines()
+    assert len(lines) == 1, result.output
+    # refused before any output: nothing under the scene's folder (made before pass 1)
+    assert not (out / SCENE).exists() or not any((out / SCENE).iterdir())
+    return lines[0]
+
+
+def test_metadata_of_another_day_is_refused(tmp_path):
+    line = _refused(tmp_path, {"metadata": str(METADATA)}, acquired="2026-08-23T17:52:00Z")
+    assert "is of 2026-06-14" in line and "acquired 2026-08-23" in line
+
+
+def test_metadata_of_another_sensor_than_the_recipe_s_is_refused(tmp_path):
+    line = _refused(tmp_path, {"metadata": str(METADATA), "sensor": "OLI_TIRS"})
+    assert "sensor ETM" in line and "product.sensor = 'OLI_TIRS'" in line
+
+
+def test_scaled_integers_read_as_reflectance_are_refused(tmp_path):
+    unscaled = {"reflectance_scale": 1.0, "reflectance_offset": 0.0}
+    line = _refused(tmp_path, {"metadata": str(METADATA), **unscaled})
+    assert "not reflectances" in line and "product.reflectance_scale" in line
+
+
+def test_scaled_integers_read_as_temperature_are_refused(tmp_path):
+    unscaled = {"temperature_scale": 1.0, "temperature_offset": 0.0}
+    line = _refused(tmp_path, {"metadata": str(METADATA), **unscaled})
+    assert "scaled integers" in line and "product.temperature_scale/offset" in line
