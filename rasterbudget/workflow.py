@@ -23,7 +23,8 @@ from .errors import RasterBudgetError
 from .io.paths import is_remote
 from .io.writers import write_text_atomic
 from .methods import METHODS
-from .recipe import Recipe, Scene, resolve_raster_path
+from .recipe import Recipe, Scene
+from .scene.inputs import input_paths
 from .scene.run import RunOptions, run_scene
 from .scene.summaries import rows_to_csv
 
@@ -32,14 +33,8 @@ BATCH_TABLE = "batch.csv"
 
 def scene_fingerprint(recipe: Recipe, scene: Scene, table: ClassTable, settings: RunOptions) -> str:
     """Hash of everything that decides a scene's outputs (see module docstring)."""
-    files = {}
-    for key, value in json.loads(scene.inputs.model_dump_json()).items():
-        if value is None:
-            continue
-        path = resolve_raster_path(recipe, value["path"] if isinstance(value, dict) else value)
-        files[key] = _file_identity(path)
-    for key, value in scene.overpass.gridded().items():
-        files[key] = _file_identity(resolve_raster_path(recipe, value))
+    # every input file by role: given, gridded weather, a product's bands and pixel QA
+    files = {role: _file_identity(path) for role, path in input_paths(recipe, scene)[0].items()}
     payload = {
         "version": __version__,
         "scene": json.loads(scene.model_dump_json()),
@@ -129,25 +124,25 @@ def run_batch(
     )
     for scene in scenes:
         started = time.perf_counter()
-        fingerprint = scene_fingerprint(recipe, scene, table, settings)
         out_dir = settings.out_dir / scene.id
-        if not force and is_complete(out_dir, fingerprint):
-            manifest = json.loads((out_dir / "manifest.json").read_text())
-            outcome = SceneOutcome(
-                scene.id,
-                "skipped",
-                time.perf_counter() - started,
-                "complete and up to date",
-                manifest,
-            )
-        else:
-            try:
+        try:  # a scene whose files cannot even be listed fails alone, like any other
+            fingerprint = scene_fingerprint(recipe, scene, table, settings)
+            if not force and is_complete(out_dir, fingerprint):
+                manifest = json.loads((out_dir / "manifest.json").read_text())
+                outcome = SceneOutcome(
+                    scene.id,
+                    "skipped",
+                    time.perf_counter() - started,
+                    "complete and up to date",
+                    manifest,
+                )
+            else:
                 result = run_scene(recipe, scene, table, settings, fingerprint=fingerprint)
                 outcome = SceneOutcome(
                     scene.id, "done", time.perf_counter() - started, "", result.manifest
                 )
-            except RasterBudgetError as err:
-                outcome = SceneOutcome(scene.id, "failed", time.perf_counter() - started, str(err))
+        except RasterBudgetError as err:
+            outcome = SceneOutcome(scene.id, "failed", time.perf_counter() - started, str(err))
         outcomes.append(outcome)
         if report is not None:
             report(outcome)

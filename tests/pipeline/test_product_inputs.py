@@ -200,3 +200,25 @@ def test_scaled_integers_read_as_temperature_are_refused(tmp_path):
     unscaled = {"temperature_scale": 1.0, "temperature_offset": 0.0}
     line = _refused(tmp_path, {"metadata": str(METADATA), **unscaled})
     assert "scaled integers" in line and "product.temperature_scale/offset" in line
+
+
+def test_a_changed_product_band_changes_the_scene_fingerprint(tmp_path):
+    import os
+
+    from rasterbudget.catalog.classes import load_class_table
+    from rasterbudget.recipe import load_recipe
+    from rasterbudget.scene.run import RunOptions
+    from rasterbudget.workflow import scene_fingerprint
+
+    folder = tmp_path / "product"
+    shutil.copytree(PRODUCT, folder)
+    recipe = load_recipe(_product_recipe(tmp_path, {"metadata": str(folder / METADATA.name)}))
+    options = RunOptions(out_dir=tmp_path / "out", chunk_size=256, tile_size=100)
+
+    def fingerprint() -> str:
+        return scene_fingerprint(recipe, recipe.scene[0], load_class_table(), options)
+
+    before = fingerprint()
+    band = folder / f"{PRODUCT_STEM}_SR_B4.TIF"
+    os.utime(band, ns=(band.stat().st_atime_ns, band.stat().st_mtime_ns + 10**9))
+    assert fingerprint() != before  # the rerun is not skipped as "complete, up to date"
