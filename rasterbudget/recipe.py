@@ -90,7 +90,7 @@ class SceneInputs(_Strict):
 
     albedo: str | InputSpec | None = None  # or derived from [scene.product]
     surface_temperature: str | InputSpec | None = None  # or from [scene.product]
-    land_cover: str | InputSpec
+    land_cover: str | InputSpec | None = None  # or recognised from NDVI and albedo
     ndvi: str | InputSpec | None = None
     elevation: str | InputSpec | None = None
     cloud_mask: MaskSpec | None = None
@@ -195,11 +195,42 @@ class ResidualSettings(_Strict):
     max_evaporative_fraction: float = Field(1.0, ge=1.0, le=1.3)
 
 
-class ProductSettings(_Strict):
-    """``[scene.product]``: a Landsat Collection 2 Level-2 product as delivered, instead of ready
-    albedo, surface-temperature and NDVI rasters (any of those given in [scene.inputs] wins)."""
+class BandCalibration(_Strict):
+    """``[scene.product.calibration.<band>]``: a Level-1 band's calibration facts, stated here
+    when the metadata lack them, or over the metadata's."""
 
-    kind: Literal["landsat_level2"] = "landsat_level2"
+    radiance_scale: float | None = Field(None, gt=0.0)  # L = scale x DN + offset
+    radiance_offset: float | None = None
+    lmin: float | None = None  # or the old layout's limits
+    lmax: float | None = None
+    qcalmin: float | None = None
+    qcalmax: float | None = None
+    solar_irradiance: float | None = Field(None, gt=0.0)  # ESUN [W m-2 um-1]
+    k1: float | None = Field(None, gt=0.0)  # thermal constants [W m-2 sr-1 um-1], [K]
+    k2: float | None = Field(None, gt=0.0)
+
+
+class ThermalAtmosphere(_Strict):
+    """``[scene.product.atmosphere]``: the thermal band's path terms; each derived from the
+    overpass weather (water vapour from humidity) unless given."""
+
+    transmittance: float | None = Field(None, gt=0.0, le=1.0)
+    upwelling_radiance: float | None = Field(None, ge=0.0, le=10.0)  # [W m-2 sr-1 um-1]
+    downwelling_radiance: float | None = Field(None, ge=0.0, le=10.0)
+    profile: Literal["tropical", "midlatitude_summer", "midlatitude_winter"] = "midlatitude_summer"
+    precipitable_water_mm: float | None = Field(None, gt=0.0, le=100.0)  # else from humidity
+    clearness: float = Field(1.0, ge=0.5, le=1.0)  # 1 clean air, 0.5 very turbid (Kt)
+
+
+class ProductSettings(_Strict):
+    """``[scene.product]``: a Landsat product as delivered, instead of ready albedo,
+    surface-temperature and NDVI rasters (any of those given in [scene.inputs] wins).
+
+    ``landsat_level2``: Collection 2 surface reflectance and temperature. ``landsat_level1``:
+    digital numbers of any generation, corrected here (at-surface reflectance, single-channel
+    surface temperature)."""
+
+    kind: Literal["landsat_level2", "landsat_level1"] = "landsat_level2"
     metadata: str | None = None  # the product's MTL (.txt, .json or .xml); bands found beside it
     stac_item: str | None = None  # a STAC Item JSON whose assets are the bands (common names)
     sensor: Literal["TM", "ETM", "OLI_TIRS"] | None = None  # needed without metadata
@@ -211,6 +242,13 @@ class ProductSettings(_Strict):
     temperature_scale: float | None = None
     temperature_offset: float | None = None
     mask_clouds: bool = True  # drop fill, dilated cloud, cirrus, cloud and shadow (pixel QA bits)
+    # Level-1 facts, stated here or over the metadata's
+    sun_elevation_deg: float | None = Field(None, gt=0.0, le=90.0)
+    sun_azimuth_deg: float | None = Field(None, ge=0.0, le=360.0)
+    earth_sun_distance_au: float | None = Field(None, ge=0.98, le=1.02)
+    thermal_gain: Literal["low", "high"] = "low"  # ETM+ band 6: low gain does not saturate
+    calibration: dict[str, BandCalibration] = {}
+    atmosphere: ThermalAtmosphere = ThermalAtmosphere()
 
     @model_validator(mode="after")
     def _findable(self) -> ProductSettings:
@@ -223,6 +261,13 @@ class ProductSettings(_Strict):
         unknown = sorted(set(self.bands) - set(PRODUCT_BANDS))
         if unknown:
             raise ValueError(f"bands: {unknown} are not band names; use {list(PRODUCT_BANDS)}")
+        unknown = sorted(set(self.calibration) - set(PRODUCT_BANDS[:-1]))
+        if unknown:
+            raise ValueError(
+                f"calibration: {unknown} are not band names; use {list(PRODUCT_BANDS[:-1])}"
+            )
+        if self.kind == "landsat_level1" and self.stac_item is not None:
+            raise ValueError("a Level-1 product is read from its metadata or bands, not stac_item")
         return self
 
 
@@ -261,7 +306,9 @@ class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
     id: Annotated[str, Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120)]
-    acquired_utc: dt.datetime
+    acquired_utc: dt.datetime | None = None  # or from the product's metadata or sun angles
+    acquired_from: str | None = None  # where acquired_utc came from, when not given
+    acquired_date: dt.date | None = None  # the UTC date, when only the sun angles give the time
     inputs: SceneInputs
     overpass: OverpassWeather
     daily: DailyWeather
@@ -298,7 +345,8 @@ class Scene(_Strict):
     @model_serializer(mode="wrap")
     def _without_empty_tables(self, handler):
         dumped = handler(self)
-        for key in ("method_tables", "product"):  # left out when unused: manifests as before
+        # left out when unused: manifests (and fingerprints) as before
+        for key in ("method_tables", "product", "acquired_from", "acquired_date"):
             if not dumped.get(key):
                 dumped.pop(key, None)
         return dumped
@@ -313,9 +361,19 @@ class Scene(_Strict):
     def _what_the_choices_need(self) -> Scene:
         """Rules between keys, checked before any pixel is read (run and inspect alike)."""
         method = get_method(self.sensible_heat)
+        if self.acquired_utc is None:
+            raise ValueError(
+                "acquired_utc is missing; give it (e.g. 2026-06-14T17:52:00Z), or a "
+                "[scene.product] whose metadata or sun angles state it"
+            )
         for role in ("albedo", "surface_temperature"):
             if getattr(self.inputs, role) is None and self.product is None:
                 raise ValueError(f"inputs.{role} is missing; give it, or a [scene.product]")
+        if self.inputs.land_cover is None and self.inputs.ndvi is None and self.product is None:
+            raise ValueError(
+                "inputs.land_cover is missing; give it, or inputs.ndvi (surfaces are then "
+                "recognised from NDVI and albedo), or a [scene.product]"
+            )
         for table, values in self.method_tables.items():
             owner = next(m for m in METHODS.values() if m.settings_key == table)
             owner.settings_model.model_validate(values)  # errors name the table's keys
@@ -350,7 +408,9 @@ class Scene(_Strict):
 
     @field_validator("acquired_utc")
     @classmethod
-    def _utc(cls, value: dt.datetime) -> dt.datetime:
+    def _utc(cls, value: dt.datetime | None) -> dt.datetime | None:
+        if value is None:
+            return None
         if value.tzinfo is None:
             raise ValueError(
                 "acquisition time needs a time zone; write it in UTC, e.g. 2026-06-14T17:52:00Z"
@@ -580,6 +640,73 @@ def _fill(text: str, key: str, scene: dict, source: str) -> str:
     return _PLACEHOLDER.sub(one, text)
 
 
+def _acquired_from_product(scene: dict, source: str, base: Path) -> dict:
+    """A scene without ``acquired_utc`` takes its product's: the metadata's scene-centre time,
+    else the instant NREL SPA puts the sun at the stated elevation and azimuth over the first
+    band's centre on ``acquired_date`` (the metadata's date). ``acquired_from`` says which."""
+    product = scene.get("product")
+    if scene.get("acquired_utc") is not None or not isinstance(product, dict):
+        return scene
+    sid = scene.get("id", "?")
+    where = f"recipe {source}: scene {sid}"
+    metadata = None
+    text = product.get("metadata")
+    if isinstance(text, str) and "{" not in text:
+        from .io.landsat_metadata import read_landsat_metadata
+
+        path = Path(text).expanduser()
+        path = path if path.is_absolute() else (base / path).resolve()
+        try:
+            metadata = read_landsat_metadata(path)
+        except (OSError, ValueError) as err:
+            raise RecipeError(f"{where}: product.metadata {path}: {err}") from None
+        if metadata.acquisition_time is not None:
+            time_source = metadata.source_of("acquisition_time").describe()
+            return scene | {
+                "acquired_utc": metadata.acquisition_time,
+                "acquired_from": f"product metadata {time_source}",
+            }
+    elevation = product.get("sun_elevation_deg", getattr(metadata, "sun_elevation", None))
+    azimuth = product.get("sun_azimuth_deg", getattr(metadata, "sun_azimuth", None))
+    day = scene.get("acquired_date", getattr(metadata, "acquisition_date", None))
+    band = next(iter((product.get("bands") or {}).values()), None)
+    if metadata is not None and band is None:
+        first = next((b for b in metadata.bands.values() if b.file_name), None)
+        band = None if first is None else str(Path(metadata.path).parent / first.file_name)
+    if None in (elevation, azimuth, day, band) or not isinstance(day, dt.date):
+        return scene  # the model asks for acquired_utc
+    path = Path(band).expanduser()
+    path = path if path.is_absolute() else (base / path).resolve()
+    latitude, longitude = _raster_centre_lonlat(path, where)
+    from .physics.solar import time_from_sun_angles
+
+    instant, mismatch = time_from_sun_angles(day, latitude, longitude, elevation, azimuth)
+    return scene | {
+        "acquired_utc": instant,
+        "acquired_from": (
+            f"solved from the sun elevation {elevation} and azimuth {azimuth} deg on {day} at "
+            f"{latitude:.4f} N, {longitude:.4f} E (centre of {path.name}) by NREL SPA; the "
+            f"solved sun is {mismatch:.2f} deg from the stated one"
+        ),
+    }
+
+
+def _raster_centre_lonlat(path: Path, where: str) -> tuple[float, float]:
+    """Latitude and longitude of a raster's centre [degrees]."""
+    import rasterio
+    from rasterio.warp import transform as transform_points
+
+    try:
+        with rasterio.open(path) as src:
+            if src.crs is None:
+                raise RecipeError(f"{where}: {path} has no CRS; assign one to the band files.")
+            x, y = src.xy(src.height / 2.0 - 0.5, src.width / 2.0 - 0.5)
+            lon, lat = transform_points(src.crs, "EPSG:4326", [x], [y])
+    except rasterio.errors.RasterioIOError as err:
+        raise RecipeError(f"{where}: {path} cannot be read ({err}).") from None
+    return float(lat[0]), float(lon[0])
+
+
 def _with_placeholders(scene: dict, source: str) -> dict:
     """Fill placeholders in a merged scene's input paths, gridded weather paths and daily table."""
     scene = copy.deepcopy(scene)
@@ -681,7 +808,12 @@ def parse_recipe(
     tables: dict[Path, dict] = {}
     data["scene"] = [
         _daily_from_table(
-            _with_placeholders(_deep_merge(defaults, s), source), source, base, tables
+            _with_placeholders(
+                _acquired_from_product(_deep_merge(defaults, s), source, base), source
+            ),
+            source,
+            base,
+            tables,
         )
         if isinstance(s, dict)
         else s

@@ -8,7 +8,7 @@ it is computed from and how. Scene runs and ``inspect`` list, open and check the
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
 
 import numpy as np
@@ -35,6 +35,11 @@ class InputRole:
     #: a derived input: computed per block from these other inputs when not given as a file
     derived_from: tuple[str, ...] = ()
     derive: Callable[..., np.ndarray] | None = None
+    #: scene facts the derivation takes as keywords (a product's calibration, the weather);
+    #: the input is derived only where the scene holds them
+    facts: tuple[str, ...] = ()
+    #: inputs the derivation uses as keywords where the block holds them (not needed)
+    optional_from: tuple[str, ...] = ()
 
     @property
     def recipe_key(self) -> str:
@@ -53,6 +58,45 @@ def _ndvi(red, nir):
     return ndvi(red, nir)
 
 
+def _surface_temperature(
+    thermal_radiance,
+    ndvi,
+    red,
+    *,
+    thermal_k1,
+    thermal_k2,
+    thermal_transmittance,
+    upwelling_radiance,
+    downwelling_radiance,
+):
+    from ..physics.radiometry import surface_temperature, thermal_emissivity_from_ndvi
+
+    emissivity = thermal_emissivity_from_ndvi(ndvi, red)
+    # open water (NDVI below 0): 0.99, outside the NDVI rule's range (common practice)
+    emissivity = np.where(ndvi < 0.0, 0.99, emissivity)
+    return surface_temperature(
+        thermal_radiance,
+        thermal_k1,
+        thermal_k2,
+        emissivity,
+        thermal_transmittance,
+        upwelling_radiance,
+        downwelling_radiance,
+    )
+
+
+def _land_cover(ndvi, albedo, swir1=None):
+    from .surfaces import surface_classes
+
+    return surface_classes(ndvi, albedo, swir1)
+
+
+def _cloud_screen(blue, nir, swir1, ndvi, surface_temperature, *, screen_air_temperature):
+    from .surfaces import cloud_and_shadow
+
+    return cloud_and_shadow(blue, nir, swir1, ndvi, surface_temperature, screen_air_temperature)
+
+
 _REFLECTANCE_BANDS = ("blue", "red", "nir", "swir1", "swir2")
 
 _ROWS = (
@@ -68,8 +112,36 @@ _ROWS = (
         derived_from=_REFLECTANCE_BANDS,
         derive=_broadband_albedo,
     ),
-    InputRole("surface_temperature", "inputs", True, False, "K", "land-surface temperature"),
-    InputRole("land_cover", "inputs", True, True, "code", "land-cover class codes"),
+    InputRole(
+        "surface_temperature",
+        "inputs",
+        True,
+        False,
+        "K",
+        "land-surface temperature",
+        # a Level-1 thermal band: single-channel retrieval, band emissivity from NDVI
+        derived_from=("thermal_radiance", "ndvi", "red"),
+        derive=_surface_temperature,
+        facts=(
+            "thermal_k1",
+            "thermal_k2",
+            "thermal_transmittance",
+            "upwelling_radiance",
+            "downwelling_radiance",
+        ),
+    ),
+    InputRole(
+        "land_cover",
+        "inputs",
+        False,
+        True,
+        "code",
+        "land-cover class codes",
+        # without a land-cover map: surfaces recognised from NDVI and albedo (catalog.surfaces)
+        derived_from=("ndvi", "albedo"),
+        derive=_land_cover,
+        optional_from=("swir1",),
+    ),
     InputRole(
         "ndvi",
         "inputs",
@@ -81,10 +153,29 @@ _ROWS = (
         derive=_ndvi,
     ),
     InputRole("elevation", "inputs", False, False, "m", "elevation above sea level", halo=1),
-    InputRole("cloud_mask", "inputs", False, True, "code", "cloud/QA mask values or bits"),
+    InputRole(
+        "cloud_mask",
+        "inputs",
+        False,
+        True,
+        "code",
+        "cloud/QA mask values or bits",
+        # a Level-1 product without a QA band: a screen of bright-cold and dark pixels
+        derived_from=("blue", "nir", "swir1", "ndvi", "surface_temperature"),
+        derive=_cloud_screen,
+        facts=("screen_air_temperature",),
+    ),
     *(
         InputRole(band, "product", False, False, "1", f"surface reflectance, {band} band")
         for band in _REFLECTANCE_BANDS
+    ),
+    InputRole(
+        "thermal_radiance",
+        "product",
+        False,
+        False,
+        "W m-2 sr-1 um-1",
+        "at-sensor spectral radiance of the thermal band",
     ),
     InputRole(
         "air_temperature_c",
@@ -139,13 +230,24 @@ def gridded_weather_in_si(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
     }
 
 
-def derive_inputs(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
-    """Add to a block's inputs every derived input it lacks whose sources it holds."""
-    for role in INPUTS.values():
-        if role.derive is None or role.name in data:
-            continue
-        if all(name in data for name in role.derived_from):
-            data[role.name] = role.derive(*(data[name] for name in role.derived_from))
+def derive_inputs(
+    data: dict[str, np.ndarray], facts: Mapping[str, float] | None = None
+) -> dict[str, np.ndarray]:
+    """Add to a block's inputs every derived input it lacks whose sources and scene facts it
+    holds, until none is left to add (a derived input may be the source of another)."""
+    facts = facts or {}
+    added = True
+    while added:
+        added = False
+        for role in INPUTS.values():
+            if role.derive is None or role.name in data:
+                continue
+            if all(n in data for n in role.derived_from) and all(f in facts for f in role.facts):
+                sources = (data[name] for name in role.derived_from)
+                keywords = {f: facts[f] for f in role.facts}
+                keywords |= {n: data[n] for n in role.optional_from if n in data}
+                data[role.name] = role.derive(*sources, **keywords)
+                added = True
     return data
 
 

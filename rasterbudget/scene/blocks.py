@@ -55,6 +55,7 @@ class BlockContext:
     mask_values: tuple[int, ...] = ()  # cloud/QA mask values to drop
     mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
     member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
+    derive_facts: tuple[tuple[str, float], ...] = ()  # scene facts of derived inputs
 
 
 def block_state(
@@ -82,7 +83,7 @@ def block_state(
             data["elevation"] = haloed[1:-1, 1:-1]
         else:
             data[source.role] = read_window(source, rows, cols)
-    data = derive_inputs(data)
+    data = derive_inputs(data, dict(ctx.derive_facts))
     stats = {role: input_stats(role, values) for role, values in data.items()}
     if ctx.remap:
         data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
@@ -141,7 +142,7 @@ def block_state(
 #: (albedo above 1.5, surface temperature below 100 K).
 def input_stats(role: str, values: np.ndarray) -> np.ndarray:
     finite = values[np.isfinite(values)]
-    if role == "albedo" or INPUTS[role].section == "product":  # fractions
+    if role == "albedo" or _is_reflectance(role):  # fractions
         suspicious = np.count_nonzero(finite > 1.5)
     elif role == "surface_temperature":  # kelvin: below 100 is Celsius, above 1000 counts
         suspicious = np.count_nonzero((finite < 100.0) | (finite > 1000.0))
@@ -150,6 +151,10 @@ def input_stats(role: str, values: np.ndarray) -> np.ndarray:
     low = finite.min() if finite.size else np.inf
     high = finite.max() if finite.size else -np.inf
     return np.array([finite.size, values.size, low, high, suspicious], dtype=np.float64)
+
+
+def _is_reflectance(role: str) -> bool:
+    return role in INPUTS and INPUTS[role].section == "product" and INPUTS[role].units == "1"
 
 
 def remap_codes(codes: np.ndarray, mapping: dict[int, int]) -> tuple[np.ndarray, dict]:
@@ -209,7 +214,7 @@ def check_input_values(stats: dict, sources: tuple[InputSource, ...]) -> dict:
                 f'looks like percent; set {where} = {{ path = "...", units = "percent" }}, '
                 "or a scale factor."
             )
-        if INPUTS[source.role].section == "product" and suspicious > 0.5 * n_valid:
+        if _is_reflectance(source.role) and suspicious > 0.5 * n_valid:
             raise InputValueError(
                 f"{source.role} band {source.path} reads as values up to {high:.3g} (most above "
                 "1.5), not reflectances: it looks like unscaled digital numbers; set "

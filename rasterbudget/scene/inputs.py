@@ -24,6 +24,7 @@ class SceneFiles:
     mask_values: tuple[int, ...] = ()  # cloud-mask values dropped
     mask_bits: tuple[int, ...] = ()  # cloud-mask bits dropped
     product: dict | None = None  # the product's facts, for the manifest
+    derive_facts: dict | None = None  # scene facts of derived inputs (a Level-1 product's)
 
 
 def input_paths(
@@ -32,7 +33,7 @@ def input_paths(
     """Every input the scene names, by role (registry order), and its recipe options; a
     product's roles fill in what ``[scene.inputs]`` does not give."""
     if product is None and scene.product is not None:
-        product = product_inputs(recipe, scene.product, scene.acquired_utc)
+        product = product_inputs(recipe, scene)
     paths, specs = {}, {}
     gridded = scene.overpass.gridded()
     for role in INPUTS.values():
@@ -69,14 +70,10 @@ def scene_files(recipe: Recipe, scene: Scene, table: ClassTable) -> SceneFiles:
     """The scene's inputs and its target grid: the target input's, or ``[scene.grid]``."""
     import rasterio
 
-    product = (
-        product_inputs(recipe, scene.product, scene.acquired_utc)
-        if scene.product is not None
-        else None
-    )
+    product = product_inputs(recipe, scene) if scene.product is not None else None
     paths, specs = input_paths(recipe, scene, product)
     remap = {}
-    if specs["land_cover"].remap is not None:
+    if "land_cover" in specs and specs["land_cover"].remap is not None:
         from ..catalog.classes import load_remap
 
         remap = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
@@ -94,6 +91,7 @@ def scene_files(recipe: Recipe, scene: Scene, table: ClassTable) -> SceneFiles:
         mask_values=values,
         mask_bits=bits,
         product=None if product is None else product.facts,
+        derive_facts=None if product is None else product.derive_facts,
     )
 
 

@@ -57,11 +57,9 @@ def sample_grid(grid: Grid) -> tuple[Grid, int]:
 def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: int) -> list[str]:
     """Lines describing one scene's inputs; raises the run's own error where a run would fail."""
     lines = [f"scene {scene.id}  acquired {scene.acquired_utc.isoformat()}"]
-    product = (
-        product_inputs(recipe, scene.product, scene.acquired_utc)
-        if scene.product is not None
-        else None
-    )
+    if scene.acquired_from:
+        lines.append(f"  acquisition time {scene.acquired_from}")
+    product = product_inputs(recipe, scene) if scene.product is not None else None
     paths, specs = input_paths(recipe, scene, product)
     with rasterio.Env(**GDAL_OPTIONS):
         grid = target_grid(paths[target_role(paths)])
@@ -105,7 +103,7 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
                 + ("" if info["same_grid"] else "; warped to the target grid")
             )
         stats = {role: input_stats(role, values) for role, values in data.items()}
-        if specs["land_cover"].remap is not None:
+        if "land_cover" in specs and specs["land_cover"].remap is not None:
             from ..catalog.classes import load_remap
 
             mapping = load_remap(resolve_path(recipe, specs["land_cover"].remap), table)
@@ -113,7 +111,8 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
                 data["land_cover"], mapping
             )
         check_input_values(stats, tuple(sources))
-    data = derive_inputs(data)  # albedo and NDVI from a product's bands
+    # albedo, NDVI, surface temperature, land cover and clouds from a product's bands
+    data = derive_inputs(data, None if product is None else product.derive_facts)
     scene, centre = with_weather_at_centre(scene, grid, paths)
     if centre:
         lines.append(

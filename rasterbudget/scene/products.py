@@ -4,6 +4,12 @@ A Landsat Collection 2 Level-2 product gives surface reflectance bands (from whi
 registry derives albedo and NDVI), the surface-temperature band, and the pixel QA band as the
 cloud mask. Scale and offset come from the product's metadata, else from the product's published
 defaults, unless the recipe gives them; the manifest records where each fact came from.
+
+A Level-1 product gives digital numbers. Each reflective band's chain (radiance, top-of-
+atmosphere reflectance, at-surface reflectance by Tasumi, Allen & Trezza 2008) is linear in the
+digital number with scene-wide sun and weather, so it becomes one scale and offset per band;
+the thermal band becomes radiance, from which the registry derives surface temperature with the
+scene facts computed here (K1, K2, transmittance, path radiances).
 """
 
 from __future__ import annotations
@@ -13,8 +19,15 @@ from datetime import datetime
 from pathlib import Path
 
 from ..errors import InputRasterError, InputValueError
-from ..io.landsat_metadata import LandsatMetadata, read_landsat_metadata
-from ..recipe import InputSpec, ProductSettings, Recipe, resolve_path, resolve_raster_path
+from ..io.landsat_metadata import LandsatBand, LandsatMetadata, read_landsat_metadata
+from ..recipe import (
+    InputSpec,
+    ProductSettings,
+    Recipe,
+    Scene,
+    resolve_path,
+    resolve_raster_path,
+)
 
 #: Band keys of the metadata (``io.landsat_metadata``) for each common band name, per sensor.
 SENSOR_BANDS: dict[str, dict[str, str]] = {
@@ -54,13 +67,21 @@ class ProductInputs:
     specs: dict[str, InputSpec] = field(default_factory=dict)
     mask_bits: tuple[int, ...] = ()
     facts: dict = field(default_factory=dict)  # for the manifest, with where each came from
+    derive_facts: dict = field(default_factory=dict)  # scene facts for derived inputs
 
 
-def product_inputs(
+def product_inputs(recipe: Recipe, scene: Scene) -> ProductInputs:
+    """The roles, files and scaling of the scene's product (see the module docstring); the
+    scene's time is checked against the metadata's date."""
+    if scene.product.kind == "landsat_level1":
+        return level1_inputs(recipe, scene)
+    return level2_inputs(recipe, scene.product, scene.acquired_utc)
+
+
+def level2_inputs(
     recipe: Recipe, product: ProductSettings, acquired: datetime | None = None
 ) -> ProductInputs:
-    """The roles, files and scaling of a Level-2 product (see the module docstring);
-    ``acquired`` (the scene's time) is checked against the metadata's date."""
+    """The roles, files and scaling of a Level-2 product."""
     metadata, item_scaling = None, {}
     if product.stac_item is not None:
         item = resolve_path(recipe, product.stac_item)
@@ -78,7 +99,7 @@ def product_inputs(
             metadata = read_landsat_metadata(resolve_path(recipe, product.metadata))
             _same_scene(metadata, product, acquired)
         sensor = product.sensor or _sensor_of(metadata)
-        files = _band_files(recipe, product, metadata, sensor)
+        files = _band_files(recipe, product, metadata, SENSOR_BANDS[sensor])
     facts: dict = {
         "kind": product.kind,
         "sun_elevation_deg": None if metadata is None else metadata.sun_elevation,
@@ -107,6 +128,290 @@ def product_inputs(
         mask_bits = CLOUD_BITS
         facts["cloud_mask_bits"] = list(CLOUD_BITS)
     return ProductInputs(paths=paths, specs=specs, mask_bits=mask_bits, facts=facts)
+
+
+#: Level-1 band keys of the metadata (``io.landsat_metadata``) per common band name and sensor;
+#: ETM+ band 6 by gain (low: VCID_1, high: VCID_2).
+LEVEL1_BANDS: dict[str, dict[str, str]] = {
+    sensor: bands | {"thermal": {"TM": "6", "ETM": "6", "OLI_TIRS": "10"}[sensor]}
+    for sensor, bands in SENSOR_BANDS.items()
+}
+_ETM_THERMAL = {"low": "6_VCID_1", "high": "6_VCID_2"}
+
+#: The TM/ETM+ band whose Tasumi et al. (2008) coefficients each common band takes; on OLI the
+#: same coefficients on the matching bands are an adaptation.
+_TASUMI_BAND = {"blue": 1, "red": 3, "nir": 4, "swir1": 5, "swir2": 7}
+
+#: Native thermal pixel size per sensor [m] (TM 120, ETM+ 60, TIRS 100; from memory). Level-1
+#: files deliver them resampled to 30 m by the provider; other grids are warped here.
+THERMAL_PIXEL_M = {"TM": 120, "ETM": 60, "OLI_TIRS": 100}
+
+
+def level1_inputs(recipe: Recipe, scene: Scene) -> ProductInputs:
+    """The roles, files, scaling and scene facts of a Level-1 product of digital numbers."""
+    import math
+
+    from ..physics import atmosphere, radiometry, turbulence
+
+    product = scene.product
+    metadata = None
+    if product.metadata is not None:
+        metadata = read_landsat_metadata(resolve_path(recipe, product.metadata))
+        _same_scene(metadata, product, scene.acquired_utc)
+    sensor = product.sensor or _sensor_of(metadata)
+    keys = dict(LEVEL1_BANDS[sensor])
+    if sensor == "ETM":
+        keys["thermal"] = _ETM_THERMAL[product.thermal_gain]
+    files = _band_files(recipe, product, metadata, keys)
+    where = f"scene {scene.id}"
+
+    def fact(name: str, recipe_value, metadata_value, metadata_key: str):
+        if recipe_value is not None:
+            return recipe_value, f"recipe product.{name}"
+        if metadata_value is not None:
+            return metadata_value, f"metadata {metadata.source_of(metadata_key).describe()}"
+        return None, None
+
+    elevation, elevation_source = fact(
+        "sun_elevation_deg",
+        product.sun_elevation_deg,
+        getattr(metadata, "sun_elevation", None),
+        "sun_elevation",
+    )
+    if elevation is None:
+        raise InputValueError(
+            f"{where}: the product states no sun elevation; give product.sun_elevation_deg "
+            "(the metadata's SUN_ELEVATION)."
+        )
+    distance, distance_source = fact(
+        "earth_sun_distance_au",
+        product.earth_sun_distance_au,
+        getattr(metadata, "earth_sun_distance", None),
+        "earth_sun_distance",
+    )
+    if distance is None:
+        distance = radiometry.earth_sun_distance(scene.acquired_utc)
+        distance_source = "NREL SPA at acquired_utc"
+    overpass = scene.overpass
+    if not isinstance(overpass.air_temperature_c, float):
+        raise InputValueError(
+            f"{where}: a Level-1 product is corrected with the station's overpass weather; give "
+            "overpass.air_temperature_c as a number (gridded weather is read per pixel later)."
+        )
+    air_temperature = overpass.air_temperature_c + 273.15  # [K]
+    pressure = float(turbulence.air_pressure(overpass.station_elevation_m))  # [kPa]
+    water_mm, water_source = product.atmosphere.precipitable_water_mm, "recipe"
+    if water_mm is None:
+        if not isinstance(overpass.relative_humidity_pct, float):
+            raise InputValueError(
+                f"{where}: the Level-1 atmospheric correction needs the water vapour; give "
+                "overpass.relative_humidity_pct (a number) or "
+                "product.atmosphere.precipitable_water_mm."
+            )
+        vapour = turbulence.vapour_pressure_from_relative_humidity(
+            air_temperature, overpass.relative_humidity_pct
+        )
+        water_mm = atmosphere.precipitable_water(vapour, pressure)
+        water_source = "Garrison & Adler (1990) from the overpass humidity and station pressure"
+    clearness = product.atmosphere.clearness
+    cos_zenith = math.sin(math.radians(elevation))
+    facts: dict = {
+        "kind": product.kind,
+        "metadata": None if metadata is None else str(metadata.path),
+        "sensor": sensor,
+        "sun_elevation_deg": elevation,
+        "sun_elevation_source": elevation_source,
+        "earth_sun_distance_au": distance,
+        "earth_sun_distance_source": distance_source,
+        "bands": {name: str(path) for name, path in files.items()},
+        "albedo": _ALBEDO_WEIGHTS[sensor].replace("OLI bands", "OLI at-surface bands"),
+        "at_surface_reflectance": (
+            "Tasumi, Allen & Trezza (2008), coefficients of TM/ETM+ bands 1, 3, 4, 5, 7"
+            + (" on OLI bands 2, 4, 5, 6, 7: an adaptation" if sensor == "OLI_TIRS" else "")
+            + f"; pressure {pressure:.2f} kPa at the station, precipitable water "
+            f"{water_mm:.1f} mm ({water_source}), clearness {clearness}"
+        ),
+    }
+    paths, specs = {}, {}
+    for name, key in keys.items():
+        band = _band_facts(metadata, key)
+        given = product.calibration.get(name)
+        mult, add, rescaling_source = _radiance_rescaling(given, band, name, where, metadata)
+        if name == "thermal":
+            paths["thermal_radiance"] = files[name]
+            specs["thermal_radiance"] = InputSpec(
+                path=str(files[name]), scale=mult, offset=add, nodata=0.0
+            )
+            facts["thermal_radiance_scaling"] = {
+                "scale": mult,
+                "offset": add,
+                "source": rescaling_source,
+            }
+            continue
+        sun_term = math.pi * distance**2 / cos_zenith
+        if given is not None and given.solar_irradiance is not None:
+            esun = given.solar_irradiance
+            toa = (sun_term * mult / esun, sun_term * add / esun)
+            toa_source = f"{rescaling_source}; ESUN recipe product.calibration.{name}"
+        elif band is not None and band.reflectance_mult is not None and given is None:
+            # the metadata's reflectance rescaling is before division by the sine of the sun
+            toa = (
+                band.reflectance_mult / cos_zenith,
+                band.reflectance_add / cos_zenith,
+            )
+            toa_source = f"metadata {metadata.path} REFLECTANCE_MULT/ADD, sun elevation"
+        else:
+            esun = _esun(sensor, metadata, key, where, name)
+            toa = (sun_term * mult / esun, sun_term * add / esun)
+            toa_source = f"{rescaling_source}; ESUN {esun} (Chander et al. 2009, from memory)"
+        coefficients = atmosphere.TASUMI_2008[_TASUMI_BAND[name]]
+        tau_in = atmosphere.band_transmittance(
+            coefficients, pressure, water_mm, cos_zenith, clearness
+        )
+        tau_out = atmosphere.band_transmittance(coefficients, pressure, water_mm, 1.0, clearness)
+        path_rho = atmosphere.path_reflectance(coefficients, tau_in)
+        scale = toa[0] / (tau_in * tau_out)
+        offset = (toa[1] - path_rho) / (tau_in * tau_out)
+        paths[name] = files[name]
+        specs[name] = InputSpec(path=str(files[name]), scale=scale, offset=offset, nodata=0.0)
+        facts[f"{name}_scaling"] = {
+            "scale": scale,
+            "offset": offset,
+            "source": f"{toa_source}; at surface: transmittance in {tau_in:.4f}, out "
+            f"{tau_out:.4f}, path reflectance {path_rho:.4f}",
+        }
+    k1, k2, k_source = _thermal_constants(sensor, metadata, keys["thermal"], product, where)
+    given_atmosphere = product.atmosphere
+    transmittance = given_atmosphere.transmittance
+    tau_source = "recipe product.atmosphere.transmittance"
+    if transmittance is None:
+        transmittance = atmosphere.thermal_transmittance(water_mm / 10.0, air_temperature)
+        tau_source = f"Qin et al. (2001) from {water_mm:.1f} mm of water vapour" + (
+            " (fitted for TM band 6; on TIRS an approximation)" if sensor == "OLI_TIRS" else ""
+        )
+    mean_temperature = atmosphere.effective_atmospheric_temperature(
+        air_temperature, given_atmosphere.profile
+    )
+    path_radiance = atmosphere.thermal_path_radiance(transmittance, mean_temperature, k1, k2)
+    upwelling = given_atmosphere.upwelling_radiance
+    downwelling = given_atmosphere.downwelling_radiance
+    derive = {
+        "thermal_k1": k1,
+        "thermal_k2": k2,
+        "thermal_transmittance": transmittance,
+        "upwelling_radiance": path_radiance if upwelling is None else upwelling,
+        "downwelling_radiance": path_radiance if downwelling is None else downwelling,
+    }
+    facts["thermal"] = {
+        "band": keys["thermal"],
+        "gain": product.thermal_gain if sensor == "ETM" else None,
+        "gain_why": (
+            "ETM+ band 6 low gain (6_VCID_1) by default: its range reaches about 350 K where "
+            "high gain saturates near 320 K, and hot anchors are the hottest pixels"
+            if sensor == "ETM"
+            else None
+        ),
+        "native_pixel_m": THERMAL_PIXEL_M[sensor],
+        "resampling": "thermal pixels coarser than the grid are warped to it bilinearly when "
+        "the band file is on another grid; files on the grid keep the provider's resampling",
+        "k1": k1,
+        "k2": k2,
+        "k_source": k_source,
+        "transmittance": transmittance,
+        "transmittance_source": tau_source,
+        "upwelling_radiance": derive["upwelling_radiance"],
+        "downwelling_radiance": derive["downwelling_radiance"],
+        "path_radiance_source": (
+            f"Qin et al. (2001): (1 - tau) B(Ta), Ta {mean_temperature:.2f} K "
+            f"({given_atmosphere.profile})"
+            if upwelling is None or downwelling is None
+            else "recipe product.atmosphere"
+        ),
+        "emissivity": "band emissivity from NDVI (Sobrino et al. 2004), 0.99 where NDVI < 0",
+    }
+    mask_bits: tuple[int, ...] = ()
+    if product.mask_clouds:
+        from ..catalog.surfaces import CLOUD_BIT, SHADOW_BIT
+
+        if "pixel_qa" in files:
+            paths["cloud_mask"] = files["pixel_qa"]
+            mask_bits = CLOUD_BITS
+            facts["cloud_mask"] = f"pixel QA bits {list(CLOUD_BITS)}"
+        else:  # the registry derives a screen from the bands
+            derive["screen_air_temperature"] = air_temperature
+            mask_bits = (CLOUD_BIT, SHADOW_BIT)
+            facts["cloud_mask"] = (
+                "screen of bright-cold (cloud) and dark (shadow) pixels, catalog.surfaces "
+                "(common practice)"
+            )
+    return ProductInputs(
+        paths=paths, specs=specs, mask_bits=mask_bits, facts=facts, derive_facts=derive
+    )
+
+
+def _band_facts(metadata: LandsatMetadata | None, key: str) -> LandsatBand | None:
+    return None if metadata is None else metadata.bands.get(key)
+
+
+def _radiance_rescaling(given, band, name: str, where: str, metadata) -> tuple[float, float, str]:
+    """A band's DN-to-radiance rescaling and its source: the recipe's, else the metadata's."""
+    if given is not None:
+        if given.radiance_scale is not None and given.radiance_offset is not None:
+            return given.radiance_scale, given.radiance_offset, f"recipe product.calibration.{name}"
+        limits = (given.lmin, given.lmax, given.qcalmin, given.qcalmax)
+        if None not in limits and given.qcalmax != given.qcalmin:
+            mult = (given.lmax - given.lmin) / (given.qcalmax - given.qcalmin)
+            return (
+                mult,
+                given.lmin - mult * given.qcalmin,
+                f"recipe product.calibration.{name} LMIN/LMAX/QCALMIN/QCALMAX",
+            )
+    if band is not None:
+        stated = band.radiance_rescaling()
+        if stated is not None:
+            mult, add, how = stated
+            return mult, add, f"metadata {metadata.path} ({how})"
+    raise InputValueError(
+        f"{where}: no radiance rescaling for the {name} band; give "
+        f"product.calibration.{name}.radiance_scale and radiance_offset (or lmin, lmax, "
+        "qcalmin, qcalmax)."
+    )
+
+
+def _esun(sensor: str, metadata, key: str, where: str, name: str) -> float:
+    from ..physics.radiometry import ESUN
+
+    if sensor == "ETM":
+        table = ESUN["ETM+"]
+    elif sensor == "TM":
+        table = ESUN["TM4" if getattr(metadata, "spacecraft", "") == "LANDSAT_4" else "TM5"]
+    else:
+        table = {}
+    if not key.isdigit() or int(key) not in table:
+        raise InputValueError(
+            f"{where}: no solar irradiance (ESUN) for the {sensor} {name} band and the metadata "
+            f"give no REFLECTANCE_MULT/ADD; give product.calibration.{name}.solar_irradiance."
+        )
+    return table[int(key)]
+
+
+def _thermal_constants(sensor, metadata, key, product, where) -> tuple[float, float, str]:
+    from ..physics.radiometry import THERMAL_CONSTANTS
+
+    given = product.calibration.get("thermal")
+    if given is not None and given.k1 is not None and given.k2 is not None:
+        return given.k1, given.k2, "recipe product.calibration.thermal"
+    band = _band_facts(metadata, key)
+    if band is not None and band.k1 is not None and band.k2 is not None:
+        return band.k1, band.k2, f"metadata {metadata.path}"
+    if sensor == "ETM":
+        pair = THERMAL_CONSTANTS["ETM+"][6]
+    elif sensor == "TM":
+        spacecraft = getattr(metadata, "spacecraft", "")
+        pair = THERMAL_CONSTANTS["TM4" if spacecraft == "LANDSAT_4" else "TM5"][6]
+    else:
+        pair = THERMAL_CONSTANTS["TIRS"][int(key)]
+    return pair.k1, pair.k2, "Chander et al. (2009) table (from memory)"
 
 
 def _same_scene(
@@ -139,11 +444,14 @@ def _sensor_of(metadata: LandsatMetadata | None) -> str:
 
 
 def _band_files(
-    recipe: Recipe, product: ProductSettings, metadata: LandsatMetadata | None, sensor: str
+    recipe: Recipe,
+    product: ProductSettings,
+    metadata: LandsatMetadata | None,
+    keys: dict[str, str],
 ) -> dict[str, Path | str]:
     """Each band's file: the recipe's, else the metadata's file name beside the metadata."""
     files: dict[str, Path | str] = {}
-    for name in (*SENSOR_BANDS[sensor], "pixel_qa"):
+    for name in (*keys, "pixel_qa"):
         if name in product.bands:
             files[name] = resolve_raster_path(recipe, product.bands[name])
             continue
@@ -152,12 +460,12 @@ def _band_files(
         if name == "pixel_qa":
             stated = metadata.qa_files.get("QUALITY_L1_PIXEL")
         else:
-            band = metadata.bands.get(SENSOR_BANDS[sensor][name])
+            band = metadata.bands.get(keys[name])
             stated = None if band is None else band.file_name
         if stated is None:
             continue
         files[name] = Path(metadata.path).parent / stated
-    missing = [n for n in SENSOR_BANDS[sensor] if n not in files]
+    missing = [n for n in keys if n not in files]
     if missing:
         raise InputValueError(
             f"product bands {missing} are neither in the metadata nor in product.bands; "
