@@ -97,6 +97,17 @@ _ROWS = (
     Variable("longwave_in", "W m-2", "incoming longwave radiation at overpass", "component"),
     Variable("longwave_out", "W m-2", "outgoing longwave radiation at overpass", "component"),
     Variable("net_radiation_daily", "MJ m-2 d-1", "FAO-56 daily net radiation", "component"),
+    # the surface state the fluxes came from (given, or derived from a product's bands)
+    Variable("albedo", "1", "broadband surface albedo used", "component"),
+    Variable("surface_temperature", "K", "land-surface temperature used", "component"),
+    Variable(
+        "surface_class",
+        "1",
+        "class code used (given land cover, or recognised from NDVI and albedo)",
+        "component",
+        dtype="uint8",
+        nodata=0,
+    ),
     Variable(
         "reference_et_fraction",
         "1",

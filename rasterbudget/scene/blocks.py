@@ -13,6 +13,7 @@ import numpy as np
 
 from ..catalog.inputs import INPUTS, derive_inputs, gridded_weather_in_si
 from ..catalog.qa import QA
+from ..catalog.surfaces import buffered_mask
 from ..catalog.variables import QA_OUTPUT
 from ..errors import InputValueError
 from ..io.grid import (
@@ -56,6 +57,7 @@ class BlockContext:
     mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
     member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
     derive_facts: tuple[tuple[str, float], ...] = ()  # scene facts of derived inputs
+    mask_buffer: int = 0  # halo read for a derived cloud mask's buffer [pixels]
 
 
 def block_state(
@@ -74,6 +76,16 @@ def block_state(
     """
     data = {}
     normal = None
+    # a derived cloud mask grows by a buffer: its inputs are read with that halo, so the buffer
+    # crosses block edges as if the scene were one block
+    halo = ctx.mask_buffer
+    for source in ctx.sources:
+        if source.role != "elevation":
+            data[source.role] = read_window(source, rows, cols, halo=halo)
+    data = derive_inputs(data, dict(ctx.derive_facts))
+    if halo:
+        data["cloud_mask"] = buffered_mask(data["cloud_mask"])
+        data = {role: values[halo:-halo, halo:-halo] for role, values in data.items()}
     for source in ctx.sources:
         if source.role == "elevation":
             # one-pixel halo for the slope; edge pixels repeat beyond the grid
@@ -81,9 +93,6 @@ def block_state(
             dx, dy = ctx.metric_pixel_size
             normal = tuple(n[1:-1, 1:-1] for n in surface_normal(haloed, dx, dy))
             data["elevation"] = haloed[1:-1, 1:-1]
-        else:
-            data[source.role] = read_window(source, rows, cols)
-    data = derive_inputs(data, dict(ctx.derive_facts))
     stats = {role: input_stats(role, values) for role, values in data.items()}
     if ctx.remap:
         data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
@@ -344,6 +353,9 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
         "longwave_in": state["longwave_in"],
         "longwave_out": state["longwave_out"],
         "net_radiation_daily": state["net_radiation_daily"],
+        "albedo": state["albedo"],
+        "surface_temperature": ts,
+        "surface_class": np.where(np.isfinite(state["albedo"]), state["codes"], 0),
         QA_OUTPUT: qa,
         "land_cover_code": state["codes"],
     }

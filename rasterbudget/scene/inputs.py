@@ -25,6 +25,7 @@ class SceneFiles:
     mask_bits: tuple[int, ...] = ()  # cloud-mask bits dropped
     product: dict | None = None  # the product's facts, for the manifest
     derive_facts: dict | None = None  # scene facts of derived inputs (a Level-1 product's)
+    mask_buffer: int = 0  # halo read for a derived cloud mask's buffer [pixels]
 
 
 def input_paths(
@@ -92,6 +93,7 @@ def scene_files(recipe: Recipe, scene: Scene, table: ClassTable) -> SceneFiles:
         mask_bits=bits,
         product=None if product is None else product.facts,
         derive_facts=None if product is None else product.derive_facts,
+        mask_buffer=0 if product is None else product.mask_buffer,
     )
 
 

@@ -68,6 +68,7 @@ class ProductInputs:
     mask_bits: tuple[int, ...] = ()
     facts: dict = field(default_factory=dict)  # for the manifest, with where each came from
     derive_facts: dict = field(default_factory=dict)  # scene facts for derived inputs
+    mask_buffer: int = 0  # halo read for a derived cloud mask's buffer [pixels]
 
 
 def product_inputs(recipe: Recipe, scene: Scene) -> ProductInputs:
@@ -330,8 +331,15 @@ def level1_inputs(recipe: Recipe, scene: Scene) -> ProductInputs:
         "emissivity": "band emissivity from NDVI (Sobrino et al. 2004), 0.99 where NDVI < 0",
     }
     mask_bits: tuple[int, ...] = ()
+    buffer = 0
     if product.mask_clouds:
-        from ..catalog.surfaces import CLOUD_BIT, SHADOW_BIT
+        from ..catalog.surfaces import (
+            BUFFER_BIT,
+            BUFFER_HALO,
+            BUFFER_PIXELS,
+            CLOUD_BIT,
+            SHADOW_BIT,
+        )
 
         if "pixel_qa" in files:
             paths["cloud_mask"] = files["pixel_qa"]
@@ -339,13 +347,19 @@ def level1_inputs(recipe: Recipe, scene: Scene) -> ProductInputs:
             facts["cloud_mask"] = f"pixel QA bits {list(CLOUD_BITS)}"
         else:  # the registry derives a screen from the bands
             derive["screen_air_temperature"] = air_temperature
-            mask_bits = (CLOUD_BIT, SHADOW_BIT)
+            mask_bits = (BUFFER_BIT, CLOUD_BIT, SHADOW_BIT)
+            buffer = BUFFER_HALO
             facts["cloud_mask"] = (
-                "screen of bright-cold (cloud) and dark (shadow) pixels, catalog.surfaces "
-                "(common practice)"
+                "screen of bright-cold (cloud) and dark (shadow) pixels with a "
+                f"{BUFFER_PIXELS}-pixel buffer, catalog.surfaces (common practice)"
             )
     return ProductInputs(
-        paths=paths, specs=specs, mask_bits=mask_bits, facts=facts, derive_facts=derive
+        paths=paths,
+        specs=specs,
+        mask_bits=mask_bits,
+        facts=facts,
+        derive_facts=derive,
+        mask_buffer=buffer,
     )
 
 

@@ -224,6 +224,7 @@ def _block_context(
         mask_values=files.mask_values,
         mask_bits=files.mask_bits,
         derive_facts=tuple(sorted((files.derive_facts or {}).items())),
+        mask_buffer=files.mask_buffer,
         member_air_offsets=tuple(
             m.air_temperature_offset for m in sample_members(scene.uncertainty)
         ),
