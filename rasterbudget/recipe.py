@@ -186,7 +186,10 @@ class ReferenceEtSettings(_Strict):
     """``[scene.reference_et]``: FAO-56 / ASCE-EWRI standardized reference ET at the station."""
 
     surface: Literal["short", "tall"] = "tall"
-    cold_anchor_fraction: float | None = Field(None, gt=0.0, le=1.5)
+    # the cold anchor's LE as a multiple of the hourly reference ET: "auto" = 1.05 where the
+    # overpass weather gives the reference ET (common practice for the tall reference), else
+    # anchors.cold_evaporative_fraction; "off" = always anchors.cold_evaporative_fraction
+    cold_anchor_fraction: Annotated[float, Field(gt=0.0, le=1.5)] | Literal["auto", "off"] = "auto"
 
 
 class ResidualSettings(_Strict):
@@ -402,7 +405,7 @@ class Scene(_Strict):
             out.append(
                 ("daily_scaling = 'reference_et_fraction'", (*hourly, "daily.wind_speed_m_s"))
             )
-        if self.reference_et.cold_anchor_fraction is not None:  # hourly reference ET
+        if isinstance(self.reference_et.cold_anchor_fraction, float):  # hourly reference ET
             out.append(("reference_et.cold_anchor_fraction", hourly))
         return out
 

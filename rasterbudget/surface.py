@@ -7,7 +7,7 @@ does not depend on where chunk boundaries fall.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -23,6 +23,7 @@ from .physics.solar import (
     local_hour_angle,
     sun_direction,
 )
+from .screens import ScreenSettings, anchor_candidates, surface_rules
 
 #: Standard-atmosphere lapse rate used to carry the station air temperature to each pixel's
 #: elevation [K m-1] (ICAO standard atmosphere, 6.5 K km-1).
@@ -54,10 +55,9 @@ class SceneConstants:
     vapour_pressure_daily: float  # [kPa]
     daily_clearness: float | None  # station Rs / Rso, None: from sunshine hours
     sunshine_hours: float | None
-    min_ndvi_cold: float
-    max_ndvi_hot: float
+    screens: ScreenSettings = field(default_factory=ScreenSettings)  # where anchors may stand
     surface_lapse_rate: float = 0.0  # [K m-1] for the elevation-adjusted Ts of the dT relation
-    anchor_elevation_range: float = np.inf  # anchors within this height of the station [m]
+    roughness_from_ndvi: bool = False  # z0m from NDVI where the class allows NDVI-based G
     reference_et_hourly: float | None = None  # station reference ET, overpass hour [mm h-1]
     reference_et_daily: float | None = None  # station reference ET, the day [mm d-1]
     daily_scaling: str = "evaporative_fraction"
@@ -178,6 +178,7 @@ def surface_block(
     normal: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
     sun: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
     daily: bool = True,
+    features: dict[str, np.ndarray] | None = None,
 ) -> dict[str, np.ndarray]:
     """Per-pixel radiation budget, ground heat flux, air properties and QA for one block.
 
@@ -191,6 +192,8 @@ def surface_block(
     sun : unit vector towards the sun (east, north, up) per pixel; computed from latitude and
         longitude when not given. [-]
     daily : also compute the FAO-56 daily net radiation (not needed for anchor histograms).
+    features : neighbourhood features of the pixels for the anchor screens
+        (:func:`rasterbudget.screens.neighbourhood_features`); None: those screens pass.
     masked : pixels dropped by a cloud/QA mask. [bool]
     weather : gridded overpass weather on the block, by quantity, in SI units
         (``catalog.inputs.gridded_weather_in_si``): ``air_temperature`` [K],
@@ -203,7 +206,8 @@ def surface_block(
     ``ground_heat_flux``, ``available_energy``, ``shortwave_in``, ``longwave_in``, ``longwave_out``
     [W m-2], ``net_radiation_daily`` [MJ m-2 d-1], ``roughness_length`` [m], ``air_density``
     [kg m-3], ``datum_surface_temperature`` (Ts carried to the station elevation with
-    ``surface_lapse_rate``) [K], ``cold_candidate`` and ``hot_candidate`` (bool).
+    ``surface_lapse_rate``) [K], ``cold_candidate`` and ``hot_candidate`` (bool),
+    ``candidate_counts`` (pixels left after each screen, :data:`rasterbudget.screens.RULES`).
     """
     codes = land_cover_codes(land_cover)
     weather = weather or {}
@@ -285,17 +289,28 @@ def surface_block(
         rn_daily = np.full(albedo.shape, np.nan)
 
     rho = turbulence.air_density(turbulence.air_pressure(z), air_temperature)
+    roughness = lookups.roughness_length[codes]
+    if c.roughness_from_ndvi and ndvi is not None:  # no land-cover map: the continuous relation
+        roughness = np.where(
+            lookups.ground_heat_from_ndvi[codes],
+            turbulence.roughness_length_from_ndvi(ndvi),
+            roughness,
+        )
 
     valid = (qa & np.uint16(QA_NO_FLUXES)) == 0
     clean = (qa & np.uint16(QA_NOT_ANCHOR)) == 0
-    with np.errstate(invalid="ignore"):
-        ndvi_ok_cold = True if ndvi is None else ndvi >= c.min_ndvi_cold
-        ndvi_ok_hot = True if ndvi is None else ndvi <= c.max_ndvi_hot
     # Anchors stand for the weather station's conditions: keep them near its elevation.
     with np.errstate(invalid="ignore"):
-        near_station = np.abs(z - c.station_elevation) <= c.anchor_elevation_range
-    cold = clean & near_station & lookups.cold_anchor[codes] & ndvi_ok_cold
-    hot = clean & near_station & lookups.hot_anchor[codes] & ndvi_ok_hot
+        near_station = np.abs(z - c.station_elevation) <= c.screens.elevation_range
+        illumination = None
+        if normal is not None or slope is not None:
+            illumination = cos_theta / np.maximum(cos_zenith, 1e-6)
+    rules = surface_rules(
+        codes, ndvi, lookups.cold_anchor, lookups.hot_anchor, lookups.residual_reliable, c.screens
+    )
+    cold, hot, counts = anchor_candidates(
+        rules, clean, near_station, illumination, features, c.screens
+    )
 
     # Surface temperature carried to the station elevation for the dT = a + b Ts relation, so that
     # cool high ground is not mistaken for wet ground (common practice with a DEM).
@@ -322,10 +337,11 @@ def surface_block(
         "longwave_in": np.where(valid, lw_in, nan),
         "longwave_out": np.where(valid, lw_out, nan),
         "net_radiation_daily": np.where(valid, rn_daily, nan),
-        "roughness_length": lookups.roughness_length[codes],
+        "roughness_length": roughness,
         "air_density": rho,
         "cold_candidate": cold,
         "hot_candidate": hot,
+        "candidate_counts": counts,
     }
 
 

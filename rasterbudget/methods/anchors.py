@@ -17,10 +17,12 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import asdict, dataclass
+from typing import Literal
 
 import numpy as np
 from pydantic import Field
 
+from .. import screens
 from ..catalog.qa import QA
 from ..errors import AnchorError, RasterBudgetError
 from ..physics import partition, turbulence
@@ -57,6 +59,13 @@ class AnchorSettings(StrictSettings):
     max_iterations: int = Field(30, ge=1, le=200)
     tolerance_k: float = Field(0.001, gt=0.0, le=1.0)
     min_candidates: int = Field(20, ge=1)
+    # where anchors may stand (rasterbudget.screens): any class with a reliable residual, or
+    # only the class table's cold_anchor / hot_anchor classes
+    candidate_surfaces: Literal["surface", "classes"] = "surface"
+    illumination_tolerance: float = Field(0.05, gt=0.0, le=1.0)  # |cos i / cos z - 1|
+    max_ts_spread_k: float = Field(1.0, gt=0.0)  # 3 x 3 standard deviation of Ts
+    max_ndvi_spread: float = Field(0.05, gt=0.0)  # 3 x 3 standard deviation of NDVI
+    cloud_distance_px: int = Field(3, ge=0, le=50)  # no masked pixel this near
 
 
 #: Surface-temperature histogram: lower edge, upper edge and bin width [K].
@@ -168,6 +177,25 @@ def dense_histogram(histogram: RangeHistogram | None, n_members: int = 0) -> np.
     return histogram.dense(N_BINS)
 
 
+def too_few_candidates(
+    role: str, total: int, needed: int, rule_counts: np.ndarray | None = None
+) -> str:
+    """The message of a scene with too few candidates: the rule that removed them, the pixels
+    left after each rule, and what to change."""
+    if rule_counts is None:
+        return (
+            f"only {total} {role}-anchor candidate pixels (need {needed}); give anchors.{role}_xy "
+            "or check the anchor settings."
+        )
+    rule = screens.removing_rule(rule_counts, role, needed)
+    return (
+        f"only {total} {role}-anchor candidate pixels (need {needed}); the '{rule}' screen "
+        f"left fewer than {needed} (pixels left after each screen: "
+        f"{screens.describe_counts(rule_counts, role)}): {screens.ADVICE[rule]}; or give "
+        f"anchors.{role}_xy."
+    )
+
+
 @dataclass(frozen=True)
 class Anchor:
     """One calibration anchor: a population of candidate pixels around a Ts percentile."""
@@ -200,27 +228,19 @@ def select_anchor(
     band: float,
     min_candidates: int,
     width: int,
+    rule_counts: np.ndarray | None = None,
 ) -> Anchor:
     """Choose an anchor population from one role's pass-1 histogram.
 
     The population is every candidate whose rank lies within ``percentile +- band`` percent of the
     candidates sorted by surface temperature; bins cut by the rank limits count pro rata.
+    ``rule_counts`` (pixels left after each screen, :data:`rasterbudget.screens.RULES`) name the
+    screen that removed the candidates when too few are left.
     """
     counts = histogram[0]
     total = counts.sum()
     if total < min_candidates:
-        raise AnchorError(
-            f"only {int(total)} {role}-anchor candidate pixels (need {min_candidates}); "
-            f"candidates are {role}_anchor classes of the class table"
-            + (
-                " with NDVI >= anchors.cold_min_ndvi"
-                if role == "cold"
-                else " with NDVI <= anchors.hot_max_ndvi"
-            )
-            + ", free of QA problems and within anchors.max_elevation_difference_m of the "
-            "station: lower the NDVI threshold, check the land cover, "
-            f"or give anchors.{role}_xy."
-        )
+        raise AnchorError(too_few_candidates(role, int(total), min_candidates, rule_counts))
     upper = np.cumsum(counts)
     lower = upper - counts
     lo = max(0.0, (percentile - band) / 100.0 * total)
@@ -634,6 +654,7 @@ class AnchorMethod(SensibleHeatMethod):
     )
     ensemble = True
     pass1_candidates_only = True
+    anchor_screens = True
     batch_columns = ("cold_anchor_ts_k", "hot_anchor_ts_k")
 
     def pass1_block(self, state, location, ctx):
@@ -643,10 +664,10 @@ class AnchorMethod(SensibleHeatMethod):
         row, col = np.divmod(state["window_index"], c1 - c0)
         flat = (row + r0).astype(np.float64) * ctx.grid.width + (col + c0)
         members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
-        return anchor_histograms_block(state, flat, members)
+        return (*anchor_histograms_block(state, flat, members), state["candidate_counts"])
 
     def combine(self, a, b):
-        return combine_histograms(a, b)
+        return (*combine_histograms(a[:2], b[:2]), a[2] + b[2])
 
     def calibrate(self, reduced, ctx: CalibrationContext) -> Calibrated:
         """Choose (or read) both anchors and fit dT = a + b Ts, for the run and every member."""
@@ -663,12 +684,13 @@ class AnchorMethod(SensibleHeatMethod):
                     s.percentile_band,
                     s.min_candidates,
                     ctx.grid.width,
+                    reduced[2],
                 )
                 continue
             row, col = _pixel_of(ctx.grid, xy, role, scene.id)
             pixel_states[role] = ctx.pixel_state(row, col)
             chosen[role] = anchor_from_pixel(pixel_states[role], role, row, col, (0, 0))
-        k_ref = scene.reference_et.cold_anchor_fraction
+        k_ref, cold_basis = cold_anchor_basis(scene, ctx.constants)
         gridded_wind = "wind_speed_m_s" in ctx.gridded_weather
 
         def cold_condition(cold: Anchor, factor: float = 1.0) -> float:
@@ -713,7 +735,12 @@ class AnchorMethod(SensibleHeatMethod):
         )
         facts = {
             "anchors": {k: v.as_dict() | _anchor_map_xy(ctx.grid, v) for k, v in chosen.items()},
-            "calibration": calibration.as_dict() | {"cold_evaporative_fraction": cold_fraction},
+            "anchor_screens": {
+                role: dict(zip(screens.RULES, map(int, reduced[2][r]), strict=True))
+                for r, role in enumerate(ROLES)
+            },
+            "calibration": calibration.as_dict()
+            | {"cold_evaporative_fraction": cold_fraction, "cold_anchor_basis": cold_basis},
         }
         # ensemble members: the same pass-1 histograms, perturbed choices and weather
         members = []
@@ -841,16 +868,45 @@ class AnchorMethod(SensibleHeatMethod):
     def inspect(self, scene, state, factor):
         s = scene.anchors
         lines = []
+        counts = state["candidate_counts"] * factor**2
         for role in ROLES:
             n = int(state[f"{role}_candidate"].sum()) * factor**2
-            lines.append(f"  {role}-anchor candidates: about {n}")
+            lines.append(
+                f"  {role}-anchor candidates: about {n} (sampled; left after each screen: "
+                f"{screens.describe_counts(counts, role)})"
+            )
+        for role in ROLES:
+            n = int(state[f"{role}_candidate"].sum()) * factor**2
             if n < s.min_candidates and getattr(s, f"{role}_xy") is None:
-                raise AnchorError(
-                    f"scene {scene.id}: about {n} {role}-anchor candidate pixels (need "
-                    f"{s.min_candidates}); see the per-class table above, lower the "
-                    f"NDVI threshold or give anchors.{role}_xy."
-                )
+                message = too_few_candidates(role, n, s.min_candidates, counts)
+                raise AnchorError(f"scene {scene.id}: about {message.removeprefix('only ')}")
         return lines
+
+
+#: The cold anchor's LE over the hourly tall reference ET by default: a well-watered full
+#: canopy transpires about 5 % above the tall reference (common practice; Allen, Tasumi &
+#: Trezza 2007, from memory).
+AUTO_COLD_ANCHOR_FRACTION = 1.05
+
+
+def cold_anchor_basis(scene, constants) -> tuple[float | None, str]:
+    """The cold anchor's multiple of hourly reference ET (None: a fixed EF) and why."""
+    asked = scene.reference_et.cold_anchor_fraction
+    surface = scene.reference_et.surface
+    if isinstance(asked, float):
+        return asked, f"{asked} x hourly {surface} reference ET (reference_et.cold_anchor_fraction)"
+    if asked == "auto" and constants.reference_et_hourly is not None:
+        return (
+            AUTO_COLD_ANCHOR_FRACTION,
+            f"{AUTO_COLD_ANCHOR_FRACTION} x hourly {surface} reference ET (default, common "
+            "practice)",
+        )
+    why = (
+        "reference_et.cold_anchor_fraction = 'off'"
+        if asked == "off"
+        else "the recipe lacks the overpass humidity or wind for the hourly reference ET"
+    )
+    return None, f"EF = anchors.cold_evaporative_fraction ({why})"
 
 
 def _pixel_of(grid, xy: tuple[float, float], role: str, scene_id: str) -> tuple[int, int]:

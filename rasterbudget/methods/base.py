@@ -92,6 +92,9 @@ class SensibleHeatMethod:
     ensemble: ClassVar[bool] = False
     #: pass 1 needs the state of the anchor-candidate classes only (as 1-D arrays)
     pass1_candidates_only: ClassVar[bool] = False
+    #: whether its candidates pass the neighbourhood screens (``rasterbudget.screens``): blocks
+    #: are then read with a halo
+    anchor_screens: ClassVar[bool] = False
     #: extra columns of ``batch.csv``, filled by :meth:`batch_values`
     batch_columns: ClassVar[tuple[str, ...]] = ()
 

@@ -27,6 +27,7 @@ from ..physics.constants import SECONDS_PER_HOUR
 from ..physics.solar import (
     surface_normal,
 )
+from ..screens import neighbourhood_features, surface_rules
 from ..surface import (
     ClassLookups,
     SceneConstants,
@@ -58,6 +59,8 @@ class BlockContext:
     member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
     derive_facts: tuple[tuple[str, float], ...] = ()  # scene facts of derived inputs
     mask_buffer: int = 0  # halo read for a derived cloud mask's buffer [pixels]
+    halo: int = 0  # pixels read beyond each window for neighbourhood work (>= mask_buffer)
+    anchor_screens: bool = False  # compute the anchor screens' neighbourhood features
 
 
 def block_state(
@@ -76,16 +79,34 @@ def block_state(
     """
     data = {}
     normal = None
-    # a derived cloud mask grows by a buffer: its inputs are read with that halo, so the buffer
-    # crosses block edges as if the scene were one block
-    halo = ctx.mask_buffer
+    # Neighbourhood work (a derived cloud mask's buffer, the anchor screens' homogeneity and
+    # cloud distance) reads the inputs with a halo, so that it crosses block edges as if the
+    # scene were one block; everything is cropped to the window afterwards.
+    halo = ctx.halo
     for source in ctx.sources:
         if source.role != "elevation":
             data[source.role] = read_window(source, rows, cols, halo=halo)
     data = derive_inputs(data, dict(ctx.derive_facts))
+    masked = features = None
+    if "cloud_mask" in data:
+        if ctx.mask_buffer:
+            data["cloud_mask"] = buffered_mask(data["cloud_mask"])
+        masked = mask_pixels(data["cloud_mask"], ctx.mask_values, ctx.mask_bits)
+    if ctx.anchor_screens:
+        features = neighbourhood_features(
+            data["surface_temperature"],
+            data.get("ndvi"),
+            masked,
+            ctx.constants.screens.cloud_distance,
+        )
     if halo:
-        data["cloud_mask"] = buffered_mask(data["cloud_mask"])
-        data = {role: values[halo:-halo, halo:-halo] for role, values in data.items()}
+
+        def crop(values):
+            return values[halo:-halo, halo:-halo]
+
+        data = {role: crop(values) for role, values in data.items()}
+        masked = None if masked is None else crop(masked)
+        features = None if features is None else {k: crop(v) for k, v in features.items()}
     for source in ctx.sources:
         if source.role == "elevation":
             # one-pixel halo for the slope; edge pixels repeat beyond the grid
@@ -94,20 +115,29 @@ def block_state(
             normal = tuple(n[1:-1, 1:-1] for n in surface_normal(haloed, dx, dy))
             data["elevation"] = haloed[1:-1, 1:-1]
     stats = {role: input_stats(role, values) for role, values in data.items()}
+    data.pop("cloud_mask", None)
     if ctx.remap:
         data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
             data["land_cover"], dict(ctx.remap)
         )
-    masked = None
-    if "cloud_mask" in data:
-        masked = mask_pixels(data.pop("cloud_mask"), ctx.mask_values, ctx.mask_bits)
     lon, lat, sun = pixel_geometry(ctx.grid, rows, cols, ctx.constants)
-    window_index = None
+    window_index = prior_counts = None
     if candidates_only:
+        # the pixels that pass the first two screens (surface, vegetation) for either role
         codes = land_cover_codes(data["land_cover"])
-        keep = (ctx.lookups.cold_anchor | ctx.lookups.hot_anchor)[codes] & np.isfinite(
-            data["land_cover"]
+        lk = ctx.lookups
+        rules = surface_rules(
+            codes,
+            data.get("ndvi"),
+            lk.cold_anchor,
+            lk.hot_anchor,
+            lk.residual_reliable,
+            ctx.constants.screens,
         )
+        keep = (rules["cold"][1] | rules["hot"][1]) & np.isfinite(data["land_cover"])
+        prior_counts = [
+            [codes.size, *(np.count_nonzero(m) for m in rules[role])] for role in ("cold", "hot")
+        ]
         window_index = np.flatnonzero(keep)
 
         def pick(values):
@@ -117,6 +147,7 @@ def block_state(
         lon, lat, sun = pick(lon), pick(lat), tuple(pick(s) for s in sun)
         normal = None if normal is None else tuple(pick(n) for n in normal)
         masked = None if masked is None else pick(masked)
+        features = None if features is None else {k: pick(v) for k, v in features.items()}
     state = surface_block(
         ctx.constants,
         ctx.lookups,
@@ -132,7 +163,10 @@ def block_state(
         daily=daily,
         masked=masked,
         weather=gridded_weather_in_si(data),
+        features=features,
     )
+    if prior_counts is not None:  # all, surface, vegetation counted before the pick
+        state["candidate_counts"][:, :3] = prior_counts
     state["input_stats"] = stats
     # wind at the blending height, per pixel from a wind grid or the station's one value
     if "wind_speed_m_s" in data and ctx.wind_profile is not None:

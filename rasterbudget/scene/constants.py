@@ -22,6 +22,7 @@ from ..physics.solar import (
     solar_ephemeris,
 )
 from ..recipe import Scene
+from ..screens import ScreenSettings
 from ..surface import (
     SceneConstants,
     kelvin,
@@ -156,10 +157,9 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
         vapour_pressure_daily=ea_daily,
         daily_clearness=clearness,
         sunshine_hours=dw.sunshine_hours,
-        min_ndvi_cold=scene.anchors.cold_min_ndvi,
-        max_ndvi_hot=scene.anchors.hot_max_ndvi,
+        screens=screen_settings(scene.anchors),
         surface_lapse_rate=scene.anchors.surface_lapse_rate_k_per_km / 1000.0,
-        anchor_elevation_range=scene.anchors.max_elevation_difference_m,
+        roughness_from_ndvi=scene.inputs.land_cover is None,
         daily_scaling=scene.daily_scaling,
         max_evaporative_fraction=scene.residual.max_evaporative_fraction,
         **station_reference_et(scene, lat_rad, lon, doy, utc_hour, cos_z, dr, ea, ea_daily),
@@ -189,6 +189,20 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
         },
     }
     return constants, facts
+
+
+def screen_settings(anchors) -> ScreenSettings:
+    """The anchor screens' thresholds from ``[scene.anchors]``."""
+    return ScreenSettings(
+        surfaces=anchors.candidate_surfaces,
+        min_ndvi_cold=anchors.cold_min_ndvi,
+        max_ndvi_hot=anchors.hot_max_ndvi,
+        elevation_range=anchors.max_elevation_difference_m,
+        illumination_tolerance=anchors.illumination_tolerance,
+        max_ts_spread=anchors.max_ts_spread_k,
+        max_ndvi_spread=anchors.max_ndvi_spread,
+        cloud_distance=anchors.cloud_distance_px,
+    )
 
 
 def station_reference_et(

@@ -225,6 +225,11 @@ def _block_context(
         mask_bits=files.mask_bits,
         derive_facts=tuple(sorted((files.derive_facts or {}).items())),
         mask_buffer=files.mask_buffer,
+        # the anchor method screens candidates by their neighbourhood
+        halo=constants.screens.halo(files.mask_buffer)
+        if get_method(scene.sensible_heat).anchor_screens
+        else files.mask_buffer,
+        anchor_screens=get_method(scene.sensible_heat).anchor_screens,
         member_air_offsets=tuple(
             m.air_temperature_offset for m in sample_members(scene.uncertainty)
         ),

@@ -187,6 +187,6 @@ def test_rerun_replaces_previous_outputs_atomically(tmp_path):
 def test_anchor_elevation_limit_is_named_when_it_leaves_no_candidates(tmp_path):
     recipe = _one_scene(
         tmp_path,
-        lambda d: d["scene"][0].setdefault("anchors", {}).update(max_elevation_difference_m=0.5),
+        lambda d: d["scene"][0].setdefault("anchors", {}).update(max_elevation_difference_m=0.001),
     )
     _run_fails(tmp_path, recipe, "candidate", "max_elevation_difference_m")

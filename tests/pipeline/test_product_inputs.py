@@ -62,9 +62,13 @@ def test_a_level2_product_reproduces_the_ready_raster_run_outside_its_clouds(tmp
     both = ~flagged & np.isfinite(et) & np.isfinite(et_ready)
     assert both.sum() > 0.9 * (~flagged).sum()
     difference = np.abs(et[both] - et_ready[both])
-    # measured: median 0.00024, 99th percentile 0.0011, largest 0.0016 mm/d (16-bit quantisation)
-    assert np.median(difference) < 0.001
-    assert difference.max() < 0.005
+    # measured: median 0.011, 99th percentile 0.026, largest 0.032 mm/d. The 16-bit
+    # quantisation alone gave 0.0016 at most; since the anchor screens, it also moves a few
+    # pixels across the homogeneity thresholds and the clouds take their own candidates
+    # (cold population 6,871 against 6,883 pixels), so the anchors differ by 0.003 K (cold)
+    # and 0.07 K (hot)
+    assert np.median(difference) < 0.02
+    assert difference.max() < 0.05
     facts = json.loads((folder / "manifest.json").read_text())["scene_facts"]["product"]
     assert facts["sensor"] == "ETM"
     assert facts["albedo"] == "Liang (2001) TM/ETM+ weights"

@@ -25,6 +25,7 @@ from rasterbudget.catalog.classes import load_class_table
 from rasterbudget.methods import anchors
 from rasterbudget.physics import radiation, solar, turbulence
 from rasterbudget.physics.constants import GRAVITY, SPECIFIC_HEAT_AIR, VON_KARMAN
+from rasterbudget.screens import ScreenSettings
 
 # --------------------------------------------------------------------------- the demo-like scene
 
@@ -72,10 +73,8 @@ def demo_constants(**overrides) -> surface.SceneConstants:
         ),
         daily_clearness=min(29.8 / rso, 1.0),
         sunshine_hours=None,
-        min_ndvi_cold=0.6,
-        max_ndvi_hot=0.25,
+        screens=ScreenSettings(surfaces="classes", elevation_range=500.0),
         surface_lapse_rate=0.0065,
-        anchor_elevation_range=500.0,
     )
     return dataclasses.replace(constants, **overrides)
 
