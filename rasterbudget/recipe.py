@@ -405,6 +405,8 @@ class Scene(_Strict):
             out.append(
                 ("daily_scaling = 'reference_et_fraction'", (*hourly, "daily.wind_speed_m_s"))
             )
+        if self.anchors.hot_soil is not None:  # hourly grass reference ET
+            out.append(("anchors.hot_soil", hourly))
         if isinstance(self.reference_et.cold_anchor_fraction, float):  # hourly reference ET
             out.append(("reference_et.cold_anchor_fraction", hourly))
         return out
@@ -694,6 +696,16 @@ def _acquired_from_product(scene: dict, source: str, base: Path) -> dict:
     }
 
 
+def _tables_from(base: Path, scene: dict) -> dict:
+    """Table paths of a scene made absolute (relative to the recipe's folder), so that the
+    steps that read them need not know the recipe."""
+    hot_soil = (scene.get("anchors") or {}).get("hot_soil")
+    if isinstance(hot_soil, dict) and isinstance(hot_soil.get("table"), str):
+        path = Path(hot_soil["table"]).expanduser()
+        hot_soil["table"] = str(path if path.is_absolute() else (base / path).resolve())
+    return scene
+
+
 def _raster_centre_lonlat(path: Path, where: str) -> tuple[float, float]:
     """Latitude and longitude of a raster's centre [degrees]."""
     import rasterio
@@ -737,6 +749,9 @@ def _with_placeholders(scene: dict, source: str) -> dict:
                 product["bands"][name] = _fill(value, f"product.bands.{name}", scene, source)
     if isinstance(scene.get("daily_table"), str):
         scene["daily_table"] = _fill(scene["daily_table"], "daily_table", scene, source)
+    hot_soil = (scene.get("anchors") or {}).get("hot_soil")
+    if isinstance(hot_soil, dict) and isinstance(hot_soil.get("table"), str):
+        hot_soil["table"] = _fill(hot_soil["table"], "anchors.hot_soil.table", scene, source)
     return scene
 
 
@@ -810,13 +825,16 @@ def parse_recipe(
     base = path.parent if path is not None else Path.cwd()
     tables: dict[Path, dict] = {}
     data["scene"] = [
-        _daily_from_table(
-            _with_placeholders(
-                _acquired_from_product(_deep_merge(defaults, s), source, base), source
-            ),
-            source,
+        _tables_from(
             base,
-            tables,
+            _daily_from_table(
+                _with_placeholders(
+                    _acquired_from_product(_deep_merge(defaults, s), source, base), source
+                ),
+                source,
+                base,
+                tables,
+            ),
         )
         if isinstance(s, dict)
         else s

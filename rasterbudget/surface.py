@@ -60,6 +60,7 @@ class SceneConstants:
     roughness_from_ndvi: bool = False  # z0m from NDVI where the class allows NDVI-based G
     reference_et_hourly: float | None = None  # station reference ET, overpass hour [mm h-1]
     reference_et_daily: float | None = None  # station reference ET, the day [mm d-1]
+    grass_reference_et_hourly: float | None = None  # short (grass) reference, overpass hour
     daily_scaling: str = "evaporative_fraction"
     max_evaporative_fraction: float = 1.0  # LE clipped to [0, this x (Rn - G)]
 

@@ -35,6 +35,8 @@ def scene_fingerprint(recipe: Recipe, scene: Scene, table: ClassTable, settings:
     """Hash of everything that decides a scene's outputs (see module docstring)."""
     # every input file by role: given, gridded weather, a product's bands and pixel QA
     files = {role: _file_identity(path) for role, path in input_paths(recipe, scene)[0].items()}
+    if scene.anchors.hot_soil is not None:  # the rain table of the hot anchor's soil balance
+        files["hot_soil_table"] = _file_identity(scene.anchors.hot_soil.table)
     payload = {
         "version": __version__,
         "scene": json.loads(scene.model_dump_json()),

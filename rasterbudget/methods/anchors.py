@@ -20,7 +20,7 @@ from dataclasses import asdict, dataclass
 from typing import Literal
 
 import numpy as np
-from pydantic import Field
+from pydantic import Field, model_validator
 
 from .. import screens
 from ..catalog.qa import QA
@@ -38,6 +38,25 @@ from .base import (
 )
 from .ensemble import ensemble_percentiles, sample_members
 from .histograms import RangeHistogram, merge_optional, range_histogram
+
+
+class HotSoilSettings(StrictSettings):
+    """``[scene.anchors.hot_soil]``: the hot anchor's remaining evaporation from a daily balance
+    of the soil surface layer (FAO-56 chapter 7) driven by daily rain and grass reference ET."""
+
+    table: str  # CSV: date (YYYY-MM-DD), precipitation_mm, reference_et_mm (grass, daily)
+    days: int = Field(30, ge=1, le=366)  # days of the balance, ending on the scene's date
+    # FAO-56 Table 19, loam, evaporating layer 0.10 m (from memory): REW 8-10, TEW 16-22 mm
+    readily_evaporable_mm: float = Field(9.0, gt=0.0, le=20.0)
+    total_evaporable_mm: float = Field(19.0, gt=0.0, le=60.0)
+    kc_max: float = Field(1.2, gt=0.5, le=1.5)  # FAO-56 eq. 72, standard climate
+    basal: float = Field(0.15, ge=0.0, le=0.5)  # Kcb of bare soil (FAO-56 chapter 7)
+
+    @model_validator(mode="after")
+    def _readily_below_total(self) -> HotSoilSettings:
+        if self.readily_evaporable_mm > self.total_evaporable_mm:
+            raise ValueError("readily_evaporable_mm must not exceed total_evaporable_mm")
+        return self
 
 
 class AnchorSettings(StrictSettings):
@@ -66,6 +85,7 @@ class AnchorSettings(StrictSettings):
     max_ts_spread_k: float = Field(1.0, gt=0.0)  # 3 x 3 standard deviation of Ts
     max_ndvi_spread: float = Field(0.05, gt=0.0)  # 3 x 3 standard deviation of NDVI
     cloud_distance_px: int = Field(3, ge=0, le=50)  # no masked pixel this near
+    hot_soil: HotSoilSettings | None = None  # else the hot anchor's EF is hot_evaporative_fraction
 
 
 #: Surface-temperature histogram: lower edge, upper edge and bin width [K].
@@ -708,13 +728,14 @@ class AnchorMethod(SensibleHeatMethod):
                 ctx.blending_wind_speed * (1.0 if wind_factor is None else wind_factor),
                 s.blending_height_m,
                 fraction,
-                s.hot_evaporative_fraction,
+                hot_fraction,
                 s.max_iterations,
                 s.tolerance_k,
                 gridded_wind=gridded_wind,
                 **({} if wind_factor is None else {"wind_factor": wind_factor}),
             )
 
+        hot_fraction, hot_basis = hot_anchor_basis(scene, s, ctx.constants, chosen["hot"])
         cold_fraction = cold_condition(chosen["cold"])
         calibration = fit(chosen, cold_fraction)
         params = AnchorParameters(
@@ -740,7 +761,8 @@ class AnchorMethod(SensibleHeatMethod):
                 for r, role in enumerate(ROLES)
             },
             "calibration": calibration.as_dict()
-            | {"cold_evaporative_fraction": cold_fraction, "cold_anchor_basis": cold_basis},
+            | {"cold_evaporative_fraction": cold_fraction, "cold_anchor_basis": cold_basis}
+            | {"hot_evaporative_fraction": hot_fraction, "hot_anchor_basis": hot_basis},
         }
         # ensemble members: the same pass-1 histograms, perturbed choices and weather
         members = []
@@ -907,6 +929,50 @@ def cold_anchor_basis(scene, constants) -> tuple[float | None, str]:
         else "the recipe lacks the overpass humidity or wind for the hourly reference ET"
     )
     return None, f"EF = anchors.cold_evaporative_fraction ({why})"
+
+
+#: Upper bound of the hot anchor's EF from the soil balance: wetter than this, the scene's driest
+#: ground is no dry extreme and the calibration would rest on two wet anchors (common practice).
+MAX_HOT_EVAPORATIVE_FRACTION = 0.8
+
+
+def hot_anchor_basis(scene, settings, constants, hot: Anchor) -> tuple[float, str]:
+    """The hot anchor's EF and why: from the FAO-56 soil-surface balance when
+    ``anchors.hot_soil`` gives the rain, else ``anchors.hot_evaporative_fraction``.
+
+    With the balance, the anchor's LE is Ke x the hourly grass reference ET at the overpass
+    (Allen, Tasumi & Trezza 2007 use the soil balance's Ke for their hot anchor; from memory),
+    Ke of the scene's day after the days of rain and reference ET before it.
+    """
+    soil = settings.hot_soil
+    if soil is None:
+        value = settings.hot_evaporative_fraction
+        return value, f"EF = anchors.hot_evaporative_fraction ({value}; no anchors.hot_soil)"
+    from ..io.daily import read_daily_series
+    from ..physics.soil_evaporation import surface_evaporation_series
+
+    series = read_daily_series(
+        soil.table, ("precipitation_mm", "reference_et_mm"), scene.acquired_utc.date(), soil.days
+    )
+    balance = surface_evaporation_series(
+        series["precipitation_mm"],
+        series["reference_et_mm"],
+        soil.total_evaporable_mm,
+        soil.readily_evaporable_mm,
+        kc_max=soil.kc_max,
+        basal=soil.basal,
+    )
+    ke = float(balance.ke[-1])
+    lam = float(turbulence.latent_heat_of_vaporization(hot.surface_temperature))
+    hot_le = ke * constants.grass_reference_et_hourly * lam / SECONDS_PER_HOUR
+    fraction = min(max(hot_le / hot.available_energy, 0.0), MAX_HOT_EVAPORATIVE_FRACTION)
+    rain = float(series["precipitation_mm"].sum())
+    return fraction, (
+        f"FAO-56 soil-surface balance over {soil.days} days ({rain:.1f} mm of rain, table "
+        f"{soil.table}): Ke {ke:.3f} on the scene's day, depletion "
+        f"{float(balance.depletion_start[-1]):.1f} of {soil.total_evaporable_mm} mm; LE = Ke x "
+        f"hourly grass reference ET ({constants.grass_reference_et_hourly:.3f} mm/h)"
+    )
 
 
 def _pixel_of(grid, xy: tuple[float, float], role: str, scene_id: str) -> tuple[int, int]:

@@ -253,27 +253,33 @@ def station_reference_et(
         )
         if v is None
     ]
+    grass_hourly = None
     if not missing_hourly:
         if ow.shortwave_in_w_m2 is not None:
             rs_hour = ow.shortwave_in_w_m2 * 0.0036  # W m-2 held for an hour -> MJ m-2 h-1
         else:  # clear-sky estimate at the station, as for the pixels (FAO-56 eq. 37 form)
             tau = float(radiation.clear_sky_transmissivity(ow.station_elevation_m))
             rs_hour = float(radiation.shortwave_in(cos_z, dr, tau)) * 0.0036
-        hourly = float(
-            reference_et.reference_et_hourly(
-                kelvin(ow.air_temperature_c),
-                float(turbulence.wind_speed_at_2m(ow.wind_speed_m_s, ow.wind_height_m)),
-                rs_hour,
-                lat_rad,
-                lon,
-                doy,
-                utc_hour - 0.5,
-                ow.station_elevation_m,
-                vapour_pressure=ea,
-                reference=ref.surface,
-                low_sun_cloudiness=low_sun_cloudiness,
+
+        def hourly_for(surface: str) -> float:
+            return float(
+                reference_et.reference_et_hourly(
+                    kelvin(ow.air_temperature_c),
+                    float(turbulence.wind_speed_at_2m(ow.wind_speed_m_s, ow.wind_height_m)),
+                    rs_hour,
+                    lat_rad,
+                    lon,
+                    doy,
+                    utc_hour - 0.5,
+                    ow.station_elevation_m,
+                    vapour_pressure=ea,
+                    reference=surface,
+                    low_sun_cloudiness=low_sun_cloudiness,
+                )
             )
-        )
+
+        hourly = hourly_for(ref.surface)
+        grass_hourly = hourly_for("short")  # the soil balance's Ke is relative to grass
     missing_daily = [] if dw.wind_speed_m_s is not None else ["daily.wind_speed_m_s"]
     if not missing_daily:
         daily = float(
@@ -289,4 +295,8 @@ def station_reference_et(
                 reference=ref.surface,
             )
         )
-    return {"reference_et_hourly": hourly, "reference_et_daily": daily}
+    return {
+        "reference_et_hourly": hourly,
+        "reference_et_daily": daily,
+        "grass_reference_et_hourly": grass_hourly,
+    }

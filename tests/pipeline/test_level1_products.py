@@ -209,8 +209,11 @@ def _refused(tmp_path, **changes):
             (tmp_path / "product" / value).unlink()
         elif key == "product":
             scene["product"].update(value)
+        elif isinstance(value, dict):  # None removes a key
+            merged = {**scene[key], **value}
+            scene[key] = {k: v for k, v in merged.items() if v is not None}
         else:
-            scene[key] = value if not isinstance(value, dict) else {**scene[key], **value}
+            scene[key] = value
     result = _run(tmp_path, data)
     assert result.exit_code != 0
     lines = [line for line in result.output.strip().splitlines() if line.strip()]
