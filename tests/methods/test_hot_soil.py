@@ -89,7 +89,8 @@ def test_a_missing_day_is_named_in_one_line(tmp_path):
 def test_hot_soil_needs_the_overpass_weather_for_the_hourly_reference(tmp_path):
     _table(tmp_path / "rain.csv", {})
     recipe = _recipe(tmp_path, {"table": "rain.csv"}, relative_humidity_pct=None)
-    with pytest.raises(RecipeError, match="anchors.hot_soil needs overpass.relative_humidity_pct"):
+    needs = r"anchors\.hot_soil needs overpass\.relative_humidity_pct"
+    with pytest.raises(RecipeError, match=needs):
         load_recipe(recipe)
 
 
