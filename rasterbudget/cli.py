@@ -335,8 +335,16 @@ def inspect(recipe: Path, chunk_size: int | None) -> None:
     from .scene.inspection import inspect_recipe
 
     parsed, table = _recipe_and_classes(recipe)
-    for line in inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size):
+    lines, problems = inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size)
+    for line in lines:
         click.echo(line)
+    if len(problems) == 1:  # the run's own message, as the run would print it
+        raise RasterBudgetError(problems[0][1])
+    if problems:
+        raise RasterBudgetError(
+            f"{len(problems)} of {len(parsed.scene)} scenes would fail "
+            f"({', '.join(sid for sid, _ in problems)}); see the PROBLEM lines above."
+        )
 
 
 @command

@@ -897,12 +897,14 @@ class AnchorMethod(SensibleHeatMethod):
                 f"  {role}-anchor candidates: about {n} (sampled; left after each screen: "
                 f"{screens.describe_counts(counts, role)})"
             )
+        lines.append("  (sampled: the homogeneity and cloud-distance screens run in the full run)")
+        problems = []  # both roles', not the first
         for role in ROLES:
             n = int(state[f"{role}_candidate"].sum()) * factor**2
             if n < s.min_candidates and getattr(s, f"{role}_xy") is None:
                 message = too_few_candidates(role, n, s.min_candidates, counts)
-                raise AnchorError(f"scene {scene.id}: about {message.removeprefix('only ')}")
-        return lines
+                problems.append(f"about {message.removeprefix('only ')}")
+        return lines, problems
 
 
 #: The cold anchor's LE over the hourly tall reference ET by default: a well-watered full

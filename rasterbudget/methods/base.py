@@ -161,10 +161,11 @@ class SensibleHeatMethod:
         """The method's picture in the report, or None."""
         return None
 
-    def inspect(self, scene: Any, state: dict, factor: int) -> list[str]:
-        """Lines for ``inspect`` from a decimated surface state (``factor``: decimation);
-        raises the error a run would meet, where it can tell already."""
-        return []
+    def inspect(self, scene: Any, state: dict, factor: int) -> tuple[list[str], list[str]]:
+        """Lines for ``inspect`` from a decimated surface state (``factor``: decimation), and
+        every problem a run would meet where it can tell already (``inspect`` prints the lines
+        first, then fails with all the problems)."""
+        return [], []
 
 
 METHODS: dict[str, SensibleHeatMethod] = {}

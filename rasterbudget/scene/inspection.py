@@ -17,6 +17,7 @@ from rasterio.transform import Affine
 
 from ..catalog.classes import ClassTable
 from ..catalog.inputs import derive_inputs, gridded_weather_in_si, target_role
+from ..errors import AnchorError
 from ..io.grid import (
     GDAL_OPTIONS,
     Grid,
@@ -54,9 +55,13 @@ def sample_grid(grid: Grid) -> tuple[Grid, int]:
     ), factor
 
 
-def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: int) -> list[str]:
-    """Lines describing one scene's inputs; raises the run's own error where a run would fail."""
-    lines = [f"scene {scene.id}  acquired {scene.acquired_utc.isoformat()}"]
+def inspect_scene(
+    recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: int, lines: list[str] | None = None
+) -> list[str]:
+    """Lines describing one scene's inputs, appended to ``lines`` as they are found (so a caller
+    keeps them when a check fails); raises the run's own error where a run would fail."""
+    lines = [] if lines is None else lines
+    lines.append(f"scene {scene.id}  acquired {scene.acquired_utc.isoformat()}")
     if scene.acquired_from:
         lines.append(f"  acquisition time {scene.acquired_from}")
     product = product_inputs(recipe, scene) if scene.product is not None else None
@@ -159,7 +164,8 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
             f"      {cls.name:16s} {in_class.sum() * factor**2:>10d}  {outside:6.1%}  "
             f"{np.nanmedian(ts):7.2f} K"
         )
-    lines += get_method(scene.sensible_heat).inspect(scene, state, factor)
+    method_lines, problems = get_method(scene.sensible_heat).inspect(scene, state, factor)
+    lines += method_lines
     megapixels = grid.width * grid.height / 1e6
     members = max(1, scene.uncertainty.members)
     seconds = SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.2 * (members - 1))
@@ -172,11 +178,24 @@ def inspect_scene(recipe: Recipe, scene: Scene, table: ClassTable, chunk_size: i
         f"for {megapixels:.1f} Mpx at chunk {chunk} (rough: measured rates, not this "
         "scene)"
     )
+    if problems:
+        raise AnchorError(f"scene {scene.id}: " + " Also: ".join(problems))
     return lines
 
 
-def inspect_recipe(path: Path, table: ClassTable, recipe: Recipe, chunk_size: int) -> list[str]:
-    out = []
+def inspect_recipe(
+    path: Path, table: ClassTable, recipe: Recipe, chunk_size: int
+) -> tuple[list[str], list[tuple[str, str]]]:
+    """Every scene's lines, and every scene's problem (scene id, message): a failing scene
+    keeps the lines found before its problem, and the scenes after it are inspected too."""
+    from ..errors import RasterBudgetError
+
+    out: list[str] = []
+    problems: list[tuple[str, str]] = []
     for scene in recipe.scene:
-        out += inspect_scene(recipe, scene, table, chunk_size)
-    return out
+        try:
+            inspect_scene(recipe, scene, table, chunk_size, out)
+        except RasterBudgetError as err:
+            out.append(f"  PROBLEM: {err}")
+            problems.append((scene.id, str(err)))
+    return out, problems

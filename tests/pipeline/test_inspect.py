@@ -45,3 +45,25 @@ def test_inspect_fails_like_the_run_would(tmp_path):
     recipe = write_toml(data, tmp_path / "recipe.toml")
     result = CliRunner().invoke(main, ["inspect", str(recipe)])
     assert result.exit_code == 2 and "does not exist" in result.output
+
+
+def test_inspect_prints_its_tables_and_every_problem_of_every_scene(tmp_path):
+    """Two scenes, three problems: the first scene lacks both anchors (its NDVI limits leave no
+    candidate), the second is at night. All are reported, after the tables."""
+    data = demo_recipe_dict()
+    first, second = data["scene"][:2]
+    first["anchors"] = {"cold_min_ndvi": 0.99, "hot_max_ndvi": -0.99}
+    second["acquired_utc"] = "2026-08-23T06:00:00Z"  # local midnight
+    recipe = write_toml(data, tmp_path / "recipe.toml")
+    result = CliRunner().invoke(main, ["inspect", str(recipe)])
+    assert result.exit_code == 2, result.output
+    out = result.output
+    # the first scene's tables come before its problem
+    assert out.index("per class (sampled)") < out.index("PROBLEM: scene kessendry_20260614")
+    problem = next(line for line in out.splitlines() if "PROBLEM: scene kessendry_20260614" in line)
+    assert "cold-anchor candidate" in problem and "hot-anchor candidate" in problem
+    assert problem.count("the 'vegetation' screen") == 2
+    assert "anchors.cold_min_ndvi" in problem
+    assert "PROBLEM:" in out.split("scene kessendry_20260823")[1]  # the second scene too
+    last = out.strip().splitlines()[-1]
+    assert "2 of 2 scenes would fail (kessendry_20260614, kessendry_20260823)" in last
