@@ -43,7 +43,14 @@ def real_run(tmp_path_factory):
     assert result.exit_code == 0, result.output
     folder = work / "out" / SCENE
     rasters = {}
-    for name in ("albedo", "surface_temperature", "surface_class", "et_daily", "qa_flags"):
+    for name in (
+        "albedo",
+        "surface_temperature",
+        "surface_class",
+        "et_daily",
+        "qa_flags",
+        "shortwave_in",
+    ):
         with rasterio.open(folder / f"{name}.tif") as src:
             rasters[name] = src.read(1).astype(np.float64)
     manifest = json.loads((folder / "manifest.json").read_text())
@@ -160,3 +167,34 @@ def test_the_folded_scaling_equals_the_radiometric_chain_step_by_step():
     # (common practice)
     dense = data["land_cover"] == 11
     assert 0.7 < np.median(data["ndvi"][dense]) < 0.9
+
+
+def test_the_anchors_stand_on_lit_homogeneous_ground_of_the_right_kind(real_run):
+    """Without a land-cover map: the cold anchor's population receives the shortwave of the
+    scene's vegetation (within 3 %, not a shaded slope), the hot anchor's lies on sparse, dry,
+    well-lit ground."""
+    rasters, manifest = real_run
+    qa = rasters["qa_flags"].astype(int)
+    cold, hot = (qa & QA.COLD_ANCHOR) != 0, (qa & QA.HOT_ANCHOR) != 0
+    assert cold.sum() >= 20 and hot.sum() >= 1
+    vegetated = _class_mask(rasters, "vegetation_dense") | _class_mask(rasters, "vegetation_sparse")
+    shortwave = rasters["shortwave_in"]
+    ratio = shortwave[cold].mean() / shortwave[vegetated].mean()
+    assert abs(ratio - 1.0) < 0.03  # measured +0.4 %
+    assert abs(shortwave[hot].mean() / shortwave[vegetated].mean() - 1.0) < 0.05  # +2.6 %
+    codes = {c.name: c.code for c in load_class_table().classes}
+    assert set(np.unique(rasters["surface_class"][hot])) <= {
+        codes["bare_soil"],
+        codes["vegetation_sparse"],
+    }
+    assert set(np.unique(rasters["surface_class"][cold])) == {codes["vegetation_dense"]}
+    # the hot anchor is the hot end of the scene: more than 15 K above the canopy mean
+    dense = _class_mask(rasters, "vegetation_dense")
+    ts = rasters["surface_temperature"]
+    assert ts[hot].mean() > ts[dense].mean() + 15.0
+    screens = manifest["anchor_screens"]
+    for role in ("cold", "hot"):  # every screen removed some candidates on this scene
+        counts = list(screens[role].values())
+        assert counts == sorted(counts, reverse=True)
+    assert screens["cold"]["illumination"] < screens["cold"]["elevation"]
+    assert screens["hot"]["homogeneity"] < screens["hot"]["illumination"]
