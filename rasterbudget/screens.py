@@ -186,8 +186,12 @@ def describe_counts(counts: np.ndarray, role: str) -> str:
 
 #: What to change when a rule removed the last candidates, per rule.
 ADVICE = {
-    "surface": "give a land-cover map, or anchors.candidate_surfaces = 'surface' to let any "
-    "reliable class hold the anchor",
+    "surface": "no pixel lies on a class with a reliable residual (water, snow and built-up "
+    "are excluded): check the land-cover map or the recognised surfaces (--components writes "
+    "surface_class)",
+    "surface_classes": "no pixel lies on a class the class table lets hold this anchor: give "
+    "a land-cover map with such classes, or anchors.candidate_surfaces = 'surface' to let any "
+    "class with a reliable residual hold it",
     "vegetation": "change anchors.cold_min_ndvi / anchors.hot_max_ndvi (the scene's NDVI range is "
     "in inspect's table)",
     "quality": "check the QA counts in inspect (masked, albedo outside its class range, low sun, "
@@ -197,6 +201,13 @@ ADVICE = {
     "homogeneity": "raise anchors.max_ts_spread_k or anchors.max_ndvi_spread (small fields)",
     "clouds": "lower anchors.cloud_distance_px",
 }
+
+
+def advice(rule: str, surfaces: str = "surface") -> str:
+    """What to change when ``rule`` removed the last candidates."""
+    if rule == "surface" and surfaces == "classes":
+        return ADVICE["surface_classes"]
+    return ADVICE[rule]
 
 
 def removing_rule(counts: np.ndarray, role: str, needed: int) -> str:

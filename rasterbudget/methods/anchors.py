@@ -198,7 +198,11 @@ def dense_histogram(histogram: RangeHistogram | None, n_members: int = 0) -> np.
 
 
 def too_few_candidates(
-    role: str, total: int, needed: int, rule_counts: np.ndarray | None = None
+    role: str,
+    total: int,
+    needed: int,
+    rule_counts: np.ndarray | None = None,
+    surfaces: str = "surface",
 ) -> str:
     """The message of a scene with too few candidates: the rule that removed them, the pixels
     left after each rule, and what to change."""
@@ -211,7 +215,7 @@ def too_few_candidates(
     return (
         f"only {total} {role}-anchor candidate pixels (need {needed}); the '{rule}' screen "
         f"left fewer than {needed} (pixels left after each screen: "
-        f"{screens.describe_counts(rule_counts, role)}): {screens.ADVICE[rule]}; or give "
+        f"{screens.describe_counts(rule_counts, role)}): {screens.advice(rule, surfaces)}; or give "
         f"anchors.{role}_xy."
     )
 
@@ -249,6 +253,7 @@ def select_anchor(
     min_candidates: int,
     width: int,
     rule_counts: np.ndarray | None = None,
+    surfaces: str = "surface",
 ) -> Anchor:
     """Choose an anchor population from one role's pass-1 histogram.
 
@@ -260,7 +265,9 @@ def select_anchor(
     counts = histogram[0]
     total = counts.sum()
     if total < min_candidates:
-        raise AnchorError(too_few_candidates(role, int(total), min_candidates, rule_counts))
+        raise AnchorError(
+            too_few_candidates(role, int(total), min_candidates, rule_counts, surfaces)
+        )
     upper = np.cumsum(counts)
     lower = upper - counts
     lo = max(0.0, (percentile - band) / 100.0 * total)
@@ -705,6 +712,7 @@ class AnchorMethod(SensibleHeatMethod):
                     s.min_candidates,
                     ctx.grid.width,
                     reduced[2],
+                    s.candidate_surfaces,
                 )
                 continue
             row, col = _pixel_of(ctx.grid, xy, role, scene.id)
@@ -902,7 +910,9 @@ class AnchorMethod(SensibleHeatMethod):
         for role in ROLES:
             n = int(state[f"{role}_candidate"].sum()) * factor**2
             if n < s.min_candidates and getattr(s, f"{role}_xy") is None:
-                message = too_few_candidates(role, n, s.min_candidates, counts)
+                message = too_few_candidates(
+                    role, n, s.min_candidates, counts, s.candidate_surfaces
+                )
                 problems.append(f"about {message.removeprefix('only ')}")
         return lines, problems
 
@@ -967,13 +977,21 @@ def hot_anchor_basis(scene, settings, constants, hot: Anchor) -> tuple[float, st
     ke = float(balance.ke[-1])
     lam = float(turbulence.latent_heat_of_vaporization(hot.surface_temperature))
     hot_le = ke * constants.grass_reference_et_hourly * lam / SECONDS_PER_HOUR
-    fraction = min(max(hot_le / hot.available_energy, 0.0), MAX_HOT_EVAPORATIVE_FRACTION)
+    unbounded = max(hot_le / hot.available_energy, 0.0)
+    fraction = min(unbounded, MAX_HOT_EVAPORATIVE_FRACTION)
     rain = float(series["precipitation_mm"].sum())
+    bounded = (
+        f"; EF {unbounded:.2f} bounded to {MAX_HOT_EVAPORATIVE_FRACTION}: the driest ground is "
+        "still wet, so the calibration rests on two wet anchors (a scene a few dry days later "
+        "is a better one)"
+        if unbounded > MAX_HOT_EVAPORATIVE_FRACTION
+        else ""
+    )
     return fraction, (
         f"FAO-56 soil-surface balance over {soil.days} days ({rain:.1f} mm of rain, table "
         f"{soil.table}): Ke {ke:.3f} on the scene's day, depletion "
         f"{float(balance.depletion_start[-1]):.1f} of {soil.total_evaporable_mm} mm; LE = Ke x "
-        f"hourly grass reference ET ({constants.grass_reference_et_hourly:.3f} mm/h)"
+        f"hourly grass reference ET ({constants.grass_reference_et_hourly:.3f} mm/h){bounded}"
     )
 
 
