@@ -18,6 +18,7 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 
 from pydantic import (
+    AfterValidator,
     BaseModel,
     ConfigDict,
     Field,
@@ -30,6 +31,7 @@ from pydantic import (
 from .errors import RecipeError
 from .methods import METHODS, get_method
 from .methods.anchors import AnchorSettings
+from .methods.base import refuse_bools
 from .methods.edges import EdgeSettings
 from .methods.ensemble import UncertaintySettings
 
@@ -38,6 +40,26 @@ Percent = Annotated[float, Field(ge=0.0, le=100.0)]
 
 class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _no_bools_for_numbers(cls, data: Any) -> Any:
+        return refuse_bools(cls, data)
+
+
+def _identifier(value: str) -> str:
+    """An id that names a folder inside OUT: not ``.`` or ``..``, no separators."""
+    if set(value) == {"."}:
+        raise ValueError(f"{value!r} would name a folder outside the output; use letters or digits")
+    return value
+
+
+#: Scene, season and comparison ids: letters, digits, ``_ . -``, not only dots.
+Identifier = Annotated[
+    str,
+    Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120),
+    AfterValidator(_identifier),
+]
 
 
 class RunSettings(_Strict):
@@ -66,6 +88,7 @@ class InputSpec(_Strict):
     units: str | None = None  # albedo: "fraction" | "percent"; surface_temperature: "K" | "C"
     resampling: Literal["nearest", "bilinear", "cubic", "average"] | None = None
     remap: str | None = None  # land cover only: CSV or TOML table of your codes -> class codes
+    band: int | None = Field(None, ge=1)  # the band to read of a multi-band file
 
 
 class MaskSpec(_Strict):
@@ -308,7 +331,7 @@ def _get(model: BaseModel, dotted: str) -> Any:
 class Scene(_Strict):
     """One ``[[scene]]``: a satellite acquisition with its inputs and weather."""
 
-    id: Annotated[str, Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120)]
+    id: Identifier
     acquired_utc: dt.datetime | None = None  # or from the product's metadata or sun angles
     acquired_from: str | None = None  # where acquired_utc came from, when not given
     acquired_date: dt.date | None = None  # the UTC date, when only the sun angles give the time
@@ -426,7 +449,7 @@ class Scene(_Strict):
 class SeasonSettings(_Strict):
     """``[[season]]``: a season total from some of the recipe's scenes."""
 
-    id: Annotated[str, Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120)]
+    id: Identifier
     start: dt.date
     end: dt.date
     scenes: list[str] = Field(min_length=1)
@@ -478,7 +501,7 @@ class CompareSettings(_Strict):
 class Comparison(_Strict):
     """One ``[[comparison]]``: a raster against a previous one and/or a baseline stack."""
 
-    id: Annotated[str, Field(pattern=r"^[A-Za-z0-9_.-]+$", min_length=1, max_length=120)]
+    id: Identifier
     current: str
     previous: str | None = None
     baseline: list[str] = []

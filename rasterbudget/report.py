@@ -12,6 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
+from .io.paths import output_folder
 from .io.writers import write_text_atomic
 from .methods import METHODS
 from .scene.manifest import CAUTION
@@ -337,5 +338,5 @@ def write_compare_report(out_dir: Path, results: list[tuple[Path, dict]]) -> Pat
         + "\n".join(sections)
         + "</body></html>"
     )
-    out_dir.mkdir(parents=True, exist_ok=True)
+    output_folder(out_dir)
     return write_text_atomic(out_dir / "report.html", page)

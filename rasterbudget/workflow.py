@@ -20,7 +20,7 @@ from pathlib import Path
 from . import __version__
 from .catalog.classes import ClassTable
 from .errors import RasterBudgetError
-from .io.paths import is_remote
+from .io.paths import is_remote, output_folder
 from .io.writers import write_text_atomic
 from .methods import METHODS
 from .recipe import Recipe, Scene
@@ -148,7 +148,7 @@ def run_batch(
         outcomes.append(outcome)
         if report is not None:
             report(outcome)
-    settings.out_dir.mkdir(parents=True, exist_ok=True)
+    output_folder(settings.out_dir)
     write_text_atomic(settings.out_dir / BATCH_TABLE, rows_to_csv([o.row() for o in outcomes]))
     return outcomes
 
@@ -218,7 +218,7 @@ def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[P
     )
     results = []
     for c in recipe.comparison:
-        folder = out / c.id
+        folder = output_folder(out, c.id)
         summary = run_compare(
             resolve_path(recipe, c.current),
             folder,

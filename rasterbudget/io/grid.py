@@ -135,9 +135,19 @@ def overlap_fraction(src, grid: Grid) -> float:
     return width * height / ((g_right - g_left) * (g_top - g_bottom))
 
 
-def check_input(path: Path | str, role: str, grid: Grid) -> dict:
-    """Check one input can be read and overlaps the grid; return a description for the manifest."""
+def check_input(path: Path | str, role: str, grid: Grid, band: int | None = None) -> dict:
+    """Check one input can be read, names its band when it has several, and overlaps the grid;
+    return a description for the manifest."""
     with _open(path, role) as src:
+        if band is None and src.count > 1:
+            raise InputRasterError(
+                f"{role} raster {path} has {src.count} bands; name the one to use, e.g. "
+                f'{role} = {{ path = "...", band = 1 }} (only band 1 would be read).'
+            )
+        if band is not None and band > src.count:
+            raise InputRasterError(
+                f"{role} raster {path} has {src.count} band(s), not band {band}; fix its band."
+            )
         if src.crs is None:
             raise InputRasterError(
                 f"{role} raster {path} has no CRS; assign one (e.g. `gdal_edit.py -a_srs "
@@ -161,10 +171,11 @@ def check_input(path: Path | str, role: str, grid: Grid) -> dict:
             "crs": src.crs.to_string(),
             "width": src.width,
             "height": src.height,
-            "dtype": src.dtypes[0],
+            "dtype": src.dtypes[(band or 1) - 1],
+            "band": band or 1,
             "nodata": src.nodata,
-            "scale": src.scales[0],
-            "offset": src.offsets[0],
+            "scale": src.scales[(band or 1) - 1],
+            "offset": src.offsets[(band or 1) - 1],
             "same_grid": grid.same_as(src),
             "covers": overlap_fraction(src, grid),
         }
@@ -192,6 +203,7 @@ class InputSource:
     nodata: float | None = None
     units: str | None = None
     resampling_name: str | None = None
+    band: int = 1  # the file's band to read (1-based)
 
     @property
     def resampling(self) -> Resampling:
@@ -216,17 +228,19 @@ def input_source(path: Path | str, role: str, grid: Grid, spec=None) -> InputSou
         nodata=spec.nodata,
         units=spec.units,
         resampling_name=spec.resampling,
+        band=spec.band or 1,
     )
 
 
 def _read(src, window: Window, source: InputSource | None = None) -> np.ndarray:
+    index = 1 if source is None else source.band
     if source is not None and source.nodata is not None:
-        data = src.read(1, window=window).astype(np.float64)
+        data = src.read(index, window=window).astype(np.float64)
         data[data == source.nodata] = np.nan
     else:
-        band = src.read(1, window=window, masked=True, boundless=False)
+        band = src.read(index, window=window, masked=True, boundless=False)
         data = band.astype(np.float64).filled(np.nan)
-    scale, offset = src.scales[0], src.offsets[0]
+    scale, offset = src.scales[index - 1], src.offsets[index - 1]
     if source is not None:
         scale = scale if source.scale is None else source.scale
         offset = offset if source.offset is None else source.offset

@@ -24,3 +24,28 @@ def is_remote(location: str | Path) -> bool:
 def local_size(location: str | Path) -> int | None:
     """Size in bytes of a local file; None for a remote location (not fetched to measure it)."""
     return None if is_remote(location) else Path(location).stat().st_size
+
+
+def output_folder(out_dir: str | Path, name: str | None = None) -> Path:
+    """``out_dir / name`` created (with its parents), refused unless it lies inside ``out_dir``;
+    an OS error while creating it becomes one line naming the folder."""
+    from ..errors import OutputError
+
+    base = Path(out_dir)
+    folder = base if name is None else base / name
+    if name is not None and folder.resolve().parent != base.resolve():
+        raise OutputError(f"{name!r} would write outside the output folder {base}; rename it.")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except FileExistsError:
+        raise OutputError(
+            f"cannot create the output folder {folder}: a file of that name is in the way; "
+            "move it or choose another --out."
+        ) from None
+    except OSError as err:
+        reason = err.strerror or type(err).__name__
+        raise OutputError(
+            f"cannot create the output folder {folder} ({reason}); check the path and write "
+            "permission, or choose another --out."
+        ) from None
+    return folder

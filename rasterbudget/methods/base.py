@@ -17,13 +17,14 @@ method too, so a new method is one module and one :func:`register` call.
 
 from __future__ import annotations
 
+import typing
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, ClassVar
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict
+from pydantic import BaseModel, ConfigDict, model_validator
 
 from ..errors import RecipeError
 
@@ -39,10 +40,38 @@ __all__ = [
 ]
 
 
+def _accepts_bool(annotation: Any) -> bool:
+    """Whether a field's type admits a bool (bool itself, or a union or annotation holding it)."""
+    if annotation is bool:
+        return True
+    return any(_accepts_bool(a) for a in typing.get_args(annotation))
+
+
+def refuse_bools(model: type[BaseModel], data: Any) -> Any:
+    """Refuse ``true``/``false`` for a key that is not a switch: pydantic would read them as 1
+    and 0 (``air_temperature_c = true`` would run at 1 degC)."""
+    if isinstance(data, dict):
+        for name, value in data.items():
+            field = model.model_fields.get(name)
+            if (
+                isinstance(value, bool)
+                and field is not None
+                and not _accepts_bool(field.annotation)
+            ):
+                raise ValueError(f"{name} = {str(value).lower()} is a switch value; give a number")
+    return data
+
+
 class StrictSettings(BaseModel):
-    """Base of every settings table: unknown keys are refused, values are frozen."""
+    """Base of every settings table: unknown keys and switch values for numbers are refused,
+    values are frozen."""
 
     model_config = ConfigDict(extra="forbid", frozen=True)
+
+    @model_validator(mode="before")
+    @classmethod
+    def _no_bools_for_numbers(cls, data: Any) -> Any:
+        return refuse_bools(cls, data)
 
 
 @dataclass(frozen=True)

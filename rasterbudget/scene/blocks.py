@@ -120,6 +120,15 @@ def block_state(
         data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
             data["land_cover"], dict(ctx.remap)
         )
+    finite_cover = np.isfinite(data["land_cover"])
+    stats["land_cover_known"] = np.array(
+        [
+            np.count_nonzero(finite_cover),
+            np.count_nonzero(
+                ctx.lookups.known[land_cover_codes(data["land_cover"])] & finite_cover
+            ),
+        ]
+    )
     lon, lat, sun = pixel_geometry(ctx.grid, rows, cols, ctx.constants)
     window_index = prior_counts = None
     if candidates_only:
@@ -189,11 +198,19 @@ def input_stats(role: str, values: np.ndarray) -> np.ndarray:
         suspicious = np.count_nonzero(finite > 1.5)
     elif role == "surface_temperature":  # kelvin: below 100 is Celsius, above 1000 counts
         suspicious = np.count_nonzero((finite < 100.0) | (finite > 1000.0))
+    elif role == "land_cover":  # class codes are whole numbers
+        suspicious = np.count_nonzero(finite != np.round(finite))
+    elif role == "elevation":  # below the Dead Sea or above Everest: nodata or wrong units
+        suspicious = np.count_nonzero((finite < ELEVATION_RANGE[0]) | (finite > ELEVATION_RANGE[1]))
     else:
         suspicious = 0
     low = finite.min() if finite.size else np.inf
     high = finite.max() if finite.size else -np.inf
     return np.array([finite.size, values.size, low, high, suspicious], dtype=np.float64)
+
+
+#: Plausible elevations [m] (Dead Sea shore, Everest summit; rounded).
+ELEVATION_RANGE = (-450.0, 8900.0)
 
 
 def _is_reflectance(role: str) -> bool:
@@ -220,6 +237,9 @@ def remap_codes(codes: np.ndarray, mapping: dict[int, int]) -> tuple[np.ndarray,
 def merge_input_stats(a: dict, b: dict) -> dict:
     out = {}
     for role in a:
+        if role == "land_cover_known":  # pixels with a land-cover value, and with a known class
+            out[role] = a[role] + b[role]
+            continue
         if role == "land_cover_unmapped":
             merged = dict(a[role])
             for code, n in b[role].items():
@@ -242,6 +262,13 @@ def check_input_values(stats: dict, sources: tuple[InputSource, ...]) -> dict:
         raise InputValueError(
             f"land-cover codes not in the remap table: {listed}; add them to the table named "
             "by inputs.land_cover.remap."
+        )
+    with_cover, known = stats.get("land_cover_known", (0, 0))
+    cover = next((s for s in sources if s.role == "land_cover"), None)
+    if cover is not None and with_cover > 0 and known == 0:
+        raise InputValueError(
+            f"land-cover raster {cover.path} holds no code of the class table on the grid; "
+            "map your codes with inputs.land_cover.remap, or name your own run.class_table."
         )
     for source in sources:
         n_valid, n_total, low, high, suspicious = stats[source.role]
@@ -275,6 +302,19 @@ def check_input_values(stats: dict, sources: tuple[InputSource, ...]) -> dict:
                 f"surface temperature raster {source.path} has a median below 100 (values "
                 f"{low:.1f} to {high:.1f}): it looks like degrees Celsius; set {where} = "
                 f'{{ path = "...", units = "C" }}, or a scale/offset.'
+            )
+        if source.role == "land_cover" and suspicious > 0:
+            raise InputValueError(
+                f"land-cover raster {source.path} holds {int(suspicious)} values that are not "
+                "whole numbers (class codes are): a continuous raster given as land cover? "
+                "Give the class-code raster (or none: surfaces are then recognised from NDVI)."
+            )
+        if source.role == "elevation" and suspicious > 0:
+            raise InputValueError(
+                f"elevation raster {source.path} has values from {low:.4g} to {high:.4g} m, "
+                f"outside {ELEVATION_RANGE[0]:g} to {ELEVATION_RANGE[1]:g} m on "
+                f"{int(suspicious)} pixels: an unset nodata value or other units? Set "
+                'inputs.elevation = { path = "...", nodata = ... } or its scale.'
             )
         summary[source.role] = {
             "valid_fraction": n_valid / n_total if n_total else 0.0,

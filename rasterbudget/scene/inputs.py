@@ -102,4 +102,12 @@ def check_inputs(files: SceneFiles) -> dict[str, dict]:
     import rasterio
 
     with rasterio.Env(**GDAL_OPTIONS):
-        return {role: check_input(path, role, files.grid) for role, path in files.paths.items()}
+        return {
+            role: check_input(
+                path,
+                role,
+                files.grid,
+                files.specs[role].band if role in files.specs else None,
+            )
+            for role, path in files.paths.items()
+        }

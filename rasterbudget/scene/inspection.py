@@ -79,7 +79,7 @@ def inspect_scene(
         coarse, factor = sample_grid(grid)
         sources, data = [], {}
         for role, path in paths.items():
-            info = check_input(path, role, grid)
+            info = check_input(path, role, grid, specs[role].band if role in specs else None)
             with rasterio.open(path) as src:
                 res = src.res
                 overlap = overlap_fraction(src, grid)

@@ -23,6 +23,7 @@ from ..catalog.variables import QA_OUTPUT, VARIABLES, histogram_variables, scene
 from ..errors import OutputError, RasterBudgetError
 from ..io.engine import BlockLayout, Target, Tiles, run_blockwise
 from ..io.grid import GDAL_OPTIONS, input_source
+from ..io.paths import output_folder
 from ..io.writers import AtomicRaster, block_size_for, remove_stale_partials, write_text_atomic
 from ..methods import get_method
 from ..methods.base import Calibrated, CalibrationContext, SensibleHeatMethod
@@ -122,8 +123,7 @@ def run_scene(
             facts["sun"]["elevation_minus_product_deg"] = facts["sun"]["elevation_deg"] - stated
     method = get_method(scene.sensible_heat)
     layout = BlockLayout.over(files.grid, settings.chunk_size)
-    out_dir = settings.out_dir / scene.id
-    out_dir.mkdir(parents=True, exist_ok=True)
+    out_dir = output_folder(settings.out_dir, scene.id)
     remove_stale_partials(out_dir)
     with rasterio.Env(**GDAL_OPTIONS), _outputs_failing_as(scene.id, out_dir):
         ctx = _block_context(scene, files, constants, ClassLookups.from_table(table), facts)

@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import InputRasterError
+from ..io.paths import output_folder
 
 #: Category code -> name (codes of the drought_category raster; 0 = no value).
 CATEGORIES = {
@@ -352,7 +353,7 @@ def run_compare(
     with_category = "drought_category" in names
     category = names.index("drought_category") if with_category else None
 
-    out_dir.mkdir(parents=True, exist_ok=True)
+    output_folder(out_dir)
     remove_stale_partials(out_dir)
     written = [n for n in names if n in VARIABLES and VARIABLES[n].group == "comparison"]
     writers = [

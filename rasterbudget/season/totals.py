@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import RecipeError
+from ..io.paths import output_folder
 from ..physics import reference_et
 from ..physics.constants import ZERO_CELSIUS
 
@@ -225,8 +226,7 @@ def run_season(recipe, season, settings) -> dict:
     )
     weights = season_weights([s.acquired_utc.date() for s in chosen], days, etr)
 
-    out_dir = settings.out_dir / season.id
-    out_dir.mkdir(parents=True, exist_ok=True)
+    out_dir = output_folder(settings.out_dir, season.id)
     remove_stale_partials(out_dir)
     layout = BlockLayout.over(grid, settings.chunk_size)
     block = block_size_for(layout.chunk)
