@@ -25,6 +25,15 @@ def command(func):
             return func(*args, **kwargs)
         except RasterBudgetError as err:
             _fail(err, debug)
+        except KeyboardInterrupt:
+            if debug:
+                raise
+            click.echo(
+                "rasterbudget: interrupted; run the same command again to resume (finished "
+                "scenes are kept, the interrupted one is redone; no partial file is left).",
+                err=True,
+            )
+            sys.exit(EXIT_INTERRUPTED)
 
     return main.command()(debug_option(wrapper))
 
@@ -51,11 +60,16 @@ def tile_size_option(default: int | None, help: str):
     )
 
 
+#: Exit statuses (README, "Exit status"): all done; some scenes of a batch failed; refused (the
+#: recipe, an input, the output folder, or the one scene of a recipe); interrupted (128 + SIGINT).
+EXIT_DONE, EXIT_SOME_FAILED, EXIT_REFUSED, EXIT_INTERRUPTED = 0, 1, 2, 130
+
+
 def _fail(err: Exception, debug: bool) -> None:
     if debug:
         raise err
     click.echo(f"rasterbudget: error: {err}", err=True)
-    sys.exit(2)
+    sys.exit(EXIT_REFUSED)
 
 
 def _recipe_and_classes(path: Path):
@@ -212,22 +226,36 @@ def _run(
                 f"{settings.out_dir / done['season_id']}"
             )
 
-    done = run_recipe(parsed, table, settings, scene_line, season_line, force=force)
+    def season_failed(season_id: str, message: str) -> None:
+        click.echo(f"{season_id}: FAILED: {message}", err=True)
+
+    done = run_recipe(
+        parsed,
+        table,
+        settings,
+        scene_line,
+        season_line,
+        force=force,
+        on_season_failed=season_failed,
+    )
     if not quiet:
         for path in done.zone_tables:
             click.echo(f"zones: {path}")
         if done.report is not None:
             click.echo(f"report: {done.report}")
     failed = [o for o in done.scenes if o.status == "failed"]
-    if len(done.scenes) == 1 and failed:
+    if len(done.scenes) == 1 and failed and not parsed.season:
         raise RasterBudgetError(failed[0].message)
-    if failed:
+    if failed or done.failed_seasons:
+        parts = [f"{len(failed)} of {len(done.scenes)} scenes failed"] if failed else []
+        if done.failed_seasons:
+            parts.append(f"{len(done.failed_seasons)} of {len(parsed.season)} seasons failed")
         click.echo(
-            f"rasterbudget: {len(failed)} of {len(done.scenes)} scenes failed "
-            f"(see {settings.out_dir / 'batch.csv'})",
+            f"rasterbudget: {', '.join(parts)} (see {settings.out_dir / 'batch.csv'} and the "
+            "FAILED lines above)",
             err=True,
         )
-        sys.exit(1)
+        sys.exit(EXIT_SOME_FAILED)
 
 
 @command

@@ -160,6 +160,7 @@ class RecipeOutcome:
 
     scenes: list[SceneOutcome]
     seasons: list[dict] = field(default_factory=list)
+    failed_seasons: list[tuple[str, str]] = field(default_factory=list)  # (id, message)
     zone_tables: list[Path] = field(default_factory=list)
     report: Path | None = None
 
@@ -171,12 +172,25 @@ def run_recipe(
     on_scene=None,
     on_season=None,
     force: bool = False,
+    on_season_failed=None,
 ) -> RecipeOutcome:
     """Every scene (a batch), then the recipe's seasons, zones and report.
 
     ``on_scene(outcome)`` and ``on_season(manifest)`` are called as each finishes (the CLI prints
     a line).
     """
+    from .io.lock import output_lock
+
+    output_folder(settings.out_dir)
+    with output_lock(settings.out_dir):
+        return _run_recipe_locked(
+            recipe, table, settings, on_scene, on_season, force, on_season_failed
+        )
+
+
+def _run_recipe_locked(
+    recipe, table, settings, on_scene, on_season, force, on_season_failed
+) -> RecipeOutcome:
     outcomes = run_batch(recipe, table, settings, on_scene, force=force)
     done = RecipeOutcome(outcomes)
     zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
@@ -184,13 +198,20 @@ def run_recipe(
         from .season.totals import run_season
 
         for season in recipe.season:
-            done.seasons.append(run_season(recipe, season, settings))
+            try:  # a season that cannot be made fails alone, like a scene
+                done.seasons.append(run_season(recipe, season, settings))
+            except RasterBudgetError as err:
+                done.failed_seasons.append((season.id, str(err)))
+                if on_season_failed is not None:
+                    on_season_failed(season.id, str(err))
+                continue
             if on_season is not None:
                 on_season(done.seasons[-1])
     if recipe.zones is not None:
         from .season.zones import run_zones
 
-        zone_targets += [(s.id, "et_season") for s in recipe.season]
+        made = {m["season_id"] for m in done.seasons}
+        zone_targets += [(s.id, "et_season") for s in recipe.season if s.id in made]
         done.zone_tables = run_zones(recipe, settings, zone_targets)
     if settings.quicklook:
         from .report import write_report
@@ -198,7 +219,7 @@ def run_recipe(
         done.report = write_report(
             settings.out_dir,
             [o.scene_id for o in outcomes if o.status != "failed"],
-            [s.id for s in recipe.season],
+            [m["season_id"] for m in done.seasons],
         )
     return done
 
@@ -216,19 +237,23 @@ def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[P
         if settings.zones is not None
         else None
     )
+    from .io.lock import output_lock
+
+    output_folder(out)
     results = []
-    for c in recipe.comparison:
-        folder = output_folder(out, c.id)
-        summary = run_compare(
-            resolve_path(recipe, c.current),
-            folder,
-            resolve_path(recipe, c.previous) if c.previous else None,
-            [resolve_path(recipe, p) for p in c.baseline],
-            settings.chunk_size,
-            settings.tile_size,
-            zones,
-            label=c.id,
-        )
-        results.append((folder, summary))
-    write_compare_report(out, results)
+    with output_lock(out):  # one run per output folder
+        for c in recipe.comparison:
+            folder = output_folder(out, c.id)
+            summary = run_compare(
+                resolve_path(recipe, c.current),
+                folder,
+                resolve_path(recipe, c.previous) if c.previous else None,
+                [resolve_path(recipe, p) for p in c.baseline],
+                settings.chunk_size,
+                settings.tile_size,
+                zones,
+                label=c.id,
+            )
+            results.append((folder, summary))
+        write_compare_report(out, results)
     return results

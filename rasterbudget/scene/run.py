@@ -9,6 +9,7 @@ passes run through the blockwise engine (``io.engine.run_blockwise``).
 
 from __future__ import annotations
 
+import shutil
 import time
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -125,44 +126,81 @@ def run_scene(
     layout = BlockLayout.over(files.grid, settings.chunk_size)
     out_dir = output_folder(settings.out_dir, scene.id)
     remove_stale_partials(out_dir)
-    with rasterio.Env(**GDAL_OPTIONS), _outputs_failing_as(scene.id, out_dir):
-        ctx = _block_context(scene, files, constants, ClassLookups.from_table(table), facts)
-        with _timed(timings, "pass1_s"):
-            reduced, input_stats = _first_pass(ctx, layout, method, scene.id, settings.progress)
-            value_summary = check_input_values(input_stats, ctx.sources)
-            calibrated = _calibrate(method, reduced, scene, ctx, gridded)
-        with _timed(timings, "pass2_s"):
-            second = _second_pass(ctx, layout, calibrated, scene, table, settings, out_dir)
-    with _timed(timings, "summaries_s"):
-        summaries, classes = _write_summaries(scene, files, table, settings, second, out_dir)
-        outputs = second.outputs | summaries
-        outputs |= method.extra_outputs(reduced, calibrated.params, out_dir, scene.id)
-    if settings.stac:
-        with _timed(timings, "stac_s"):
-            outputs[f"{scene.id}.stac.json"] = write_stac(
-                scene, files.grid, second.raster_info, outputs, out_dir, settings.cog
+    # the old manifest no longer vouches for the folder: a failure below leaves "failed"
+    (out_dir / "manifest.json").unlink(missing_ok=True)
+    outputs: dict[str, Path] = {}
+    try:
+        with rasterio.Env(**GDAL_OPTIONS), _outputs_failing_as(scene.id, out_dir):
+            ctx = _block_context(scene, files, constants, ClassLookups.from_table(table), facts)
+            with _timed(timings, "pass1_s"):
+                reduced, input_stats = _first_pass(ctx, layout, method, scene.id, settings.progress)
+                value_summary = check_input_values(input_stats, ctx.sources)
+                calibrated = _calibrate(method, reduced, scene, ctx, gridded)
+            with _timed(timings, "pass2_s"):
+                second = _second_pass(ctx, layout, calibrated, scene, table, settings, out_dir)
+            outputs |= second.outputs
+            with _timed(timings, "summaries_s"):
+                _, classes = _write_summaries(
+                    scene, files, table, settings, second, out_dir, outputs
+                )
+                outputs |= method.extra_outputs(reduced, calibrated.params, out_dir, scene.id)
+            if settings.stac:
+                with _timed(timings, "stac_s"):
+                    outputs[f"{scene.id}.stac.json"] = write_stac(
+                        scene, files.grid, second.raster_info, outputs, out_dir, settings.cog
+                    )
+            timings["total_s"] = time.perf_counter() - started
+            manifest = scene_manifest(
+                scene,
+                table,
+                files,
+                described,
+                value_summary,
+                constants,
+                facts,
+                calibrated.facts,
+                layout,
+                settings,
+                second,
+                classes,
+                outputs,
+                out_dir,
+                fingerprint,
+                timings,
             )
-    timings["total_s"] = time.perf_counter() - started
-    manifest = scene_manifest(
-        scene,
-        table,
-        files,
-        described,
-        value_summary,
-        constants,
-        facts,
-        calibrated.facts,
-        layout,
-        settings,
-        second,
-        classes,
-        outputs,
-        out_dir,
-        fingerprint,
-        timings,
-    )
-    outputs["manifest.json"] = write_manifest(out_dir, manifest)
+            outputs["manifest.json"] = write_manifest(out_dir, manifest)
+    except BaseException as err:
+        _mark_failed(scene.id, out_dir, outputs, err)
+        raise
     return SceneResult(scene_id=scene.id, out_dir=out_dir, outputs=outputs, manifest=manifest)
+
+
+def _mark_failed(scene_id: str, out_dir: Path, written: dict, err: BaseException) -> None:
+    """A failed scene keeps nothing of its run under a final name and no temporary file; where
+    outputs of an earlier run remain, a manifest says the scene failed, so nothing presents them
+    as current (best effort: the disk may be full)."""
+    import datetime as dt
+    import json
+
+    for path in written.values():
+        path = Path(path)
+        if path.is_dir() and not path.is_symlink():
+            shutil.rmtree(path, ignore_errors=True)
+        else:
+            path.unlink(missing_ok=True)
+    remove_stale_partials(out_dir)
+    if not any(out_dir.iterdir()):  # nothing older to invalidate: leave nothing at all
+        return
+    failed = {
+        "scene_id": scene_id,
+        "status": "failed" if not isinstance(err, KeyboardInterrupt) else "interrupted",
+        "error": str(err).splitlines()[0] if str(err) else type(err).__name__,
+        "written_utc": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
+    }
+    try:
+        write_text_atomic(out_dir / "manifest.json", json.dumps(failed, indent=2))
+    except OSError:
+        remove_stale_partials(out_dir)
 
 
 @contextmanager
@@ -383,10 +421,11 @@ def _write_summaries(
     settings: RunOptions,
     second: SecondPass,
     out_dir: Path,
+    outputs: dict[str, Path],
 ) -> tuple[dict[str, Path], list[dict]]:
-    """tiles.csv, tiles.geojson, classes.csv and the quick-look (small, written atomically);
-    returns them and the per-class rows."""
-    grid, outputs = files.grid, {}
+    """tiles.csv, tiles.geojson, classes.csv and the quick-look (small, written atomically),
+    each added to ``outputs`` as it is written; returns them and the per-class rows."""
+    grid = files.grid
     names = histogram_variables((*second.written, QA_OUTPUT))
     tile_stats = np.array([[np.asarray(s) for s in row] for row in second.tiles])
     tiles = tile_rows(tile_stats, names, tile_layout(grid, settings.tile_size))

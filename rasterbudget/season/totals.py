@@ -142,6 +142,22 @@ def season_days(start: dt.date, end: dt.date) -> list[dt.date]:
     return [start + dt.timedelta(days=k) for k in range((end - start).days + 1)]
 
 
+def scene_state(folder: Path) -> str:
+    """``complete``, or why a scene folder is not: ``no outputs``, ``failed: <error>``, ..."""
+    import json
+
+    try:
+        manifest = json.loads((folder / "manifest.json").read_text())
+    except FileNotFoundError:
+        return "no outputs" if not folder.is_dir() else "no manifest: an unfinished run"
+    except (OSError, ValueError):
+        return "an unreadable manifest"
+    status = manifest.get("status", "unknown")
+    if status == "complete":
+        return status
+    return f"{status}: {manifest.get('error', '')}".rstrip(": ")
+
+
 def write_season_manifest(path: Path, content: dict) -> None:
     from ..io.writers import write_text_atomic
 
@@ -203,6 +219,13 @@ def run_season(recipe, season, settings) -> dict:
     if unknown:
         raise RecipeError(f"season {season.id}: scene id(s) {unknown} are not in the recipe.")
     chosen = sorted((scenes[i] for i in season.scenes), key=lambda s: s.acquired_utc)
+    for s in chosen:  # a failed or unfinished scene's old rasters are not this recipe's
+        state = scene_state(settings.out_dir / s.id)
+        if state != "complete":
+            raise RecipeError(
+                f"season {season.id}: scene {s.id} is not complete ({state}); fix it and run "
+                "again (its older outputs, if any, are not used)."
+            )
     stem = season.fraction
     paths = [settings.out_dir / s.id / f"{stem}.tif" for s in chosen]
     absent = [str(p) for p in paths if not p.is_file()]
