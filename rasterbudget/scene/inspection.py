@@ -35,6 +35,7 @@ from .blocks import BlockContext, check_input_values, input_stats, mask_pixels, 
 from .constants import scene_constants, with_weather_at_centre
 from .geometry import pixel_lonlat
 from .inputs import input_paths, mask_rule
+from .preflight import memory_estimate_gb
 from .products import product_inputs
 
 SAMPLE_SIDE = 1024
@@ -42,8 +43,6 @@ SAMPLE_SIDE = 1024
 #: Measured on the project's 2-core machine (README, Performance): seconds per megapixel for a
 #: whole run, and resident memory of the libraries; per-pixel working memory per thread.
 SECONDS_PER_MEGAPIXEL = 1.2
-BASE_MEMORY_GB = 0.3
-BYTES_PER_PIXEL_PER_THREAD = 400
 
 
 def sample_grid(grid: Grid) -> tuple[Grid, int]:
@@ -170,9 +169,7 @@ def inspect_scene(
     members = max(1, scene.uncertainty.members)
     seconds = SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.2 * (members - 1))
     chunk = min(chunk_size, max(grid.width, grid.height))
-    memory = (
-        BASE_MEMORY_GB + 2 * chunk**2 * BYTES_PER_PIXEL_PER_THREAD * (1 + 0.5 * (members - 1)) / 1e9
-    )
+    memory = memory_estimate_gb(chunk, scene.uncertainty.members, threads=2)
     lines.append(
         f"  estimate on 2 cores: about {seconds:.1f} s and {memory:.2f} GB peak memory "
         f"for {megapixels:.1f} Mpx at chunk {chunk} (rough: measured rates, not this "

@@ -45,6 +45,7 @@ from .blocks import (
 from .constants import metric_pixel_size, scene_constants, with_weather_at_centre
 from .inputs import SceneFiles, check_inputs, scene_files
 from .manifest import scene_manifest, write_manifest, write_stac
+from .preflight import check_room
 from .summaries import (
     class_rows,
     rows_to_csv,
@@ -125,6 +126,21 @@ def run_scene(
     method = get_method(scene.sensible_heat)
     layout = BlockLayout.over(files.grid, settings.chunk_size)
     out_dir = output_folder(settings.out_dir, scene.id)
+    check_room(
+        scene.id,
+        files.grid.width * files.grid.height,
+        len(
+            scene_outputs(
+                settings.write_components,
+                constants.reference_et_hourly is not None,
+                bool(scene.uncertainty.members),
+            )
+        )
+        + 1,
+        layout.chunk,
+        scene.uncertainty.members,
+        out_dir,
+    )
     remove_stale_partials(out_dir)
     # the old manifest no longer vouches for the folder: a failure below leaves "failed"
     (out_dir / "manifest.json").unlink(missing_ok=True)
