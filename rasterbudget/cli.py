@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import functools
 import sys
+import warnings
 from pathlib import Path
 
 import click
@@ -22,7 +23,10 @@ def command(func):
     @functools.wraps(func)
     def wrapper(*args, debug: bool, **kwargs):
         try:
-            return func(*args, **kwargs)
+            with warnings.catch_warnings():
+                if not debug:  # numpy's "mean of empty slice" and the like are not messages
+                    warnings.simplefilter("ignore", RuntimeWarning)
+                return func(*args, **kwargs)
         except RasterBudgetError as err:
             _fail(err, debug)
         except KeyboardInterrupt:

@@ -8,6 +8,7 @@ from pathlib import Path
 
 from ..catalog.classes import ClassTable
 from ..catalog.inputs import INPUTS, target_role
+from ..errors import InputRasterError
 from ..io.grid import GDAL_OPTIONS, Grid, check_input, grid_from_settings, target_grid
 from ..recipe import InputSpec, Recipe, Scene, resolve_path, resolve_raster_path
 from .products import ProductInputs, product_inputs
@@ -102,7 +103,7 @@ def check_inputs(files: SceneFiles) -> dict[str, dict]:
     import rasterio
 
     with rasterio.Env(**GDAL_OPTIONS):
-        return {
+        described = {
             role: check_input(
                 path,
                 role,
@@ -111,3 +112,15 @@ def check_inputs(files: SceneFiles) -> dict[str, dict]:
             )
             for role, path in files.paths.items()
         }
+    for role, info in described.items():
+        if role != "cloud_mask" and info["covers"] < MIN_COVERAGE:
+            raise InputRasterError(
+                f"{role} raster {info['path']} covers only {info['covers']:.2%} of the target "
+                f"grid (at least {MIN_COVERAGE:.0%} needed): another region or a clipped file? "
+                "Check its extent, or set [scene.grid] to the area it covers."
+            )
+    return described
+
+
+#: Least share of the target grid an input must cover (a cloud mask may cover less).
+MIN_COVERAGE = 0.10
