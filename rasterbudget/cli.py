@@ -242,14 +242,14 @@ def _run(
         force=force,
         on_season_failed=season_failed,
     )
+    failed = [o for o in done.scenes if o.status == "failed"]
+    if len(done.scenes) == 1 and failed and not parsed.season:  # its reason is the one line
+        raise RasterBudgetError(failed[0].message)
     if not quiet:
         for path in done.zone_tables:
             click.echo(f"zones: {path}")
         if done.report is not None:
             click.echo(f"report: {done.report}")
-    failed = [o for o in done.scenes if o.status == "failed"]
-    if len(done.scenes) == 1 and failed and not parsed.season:
-        raise RasterBudgetError(failed[0].message)
     if failed or done.failed_seasons:
         parts = [f"{len(failed)} of {len(done.scenes)} scenes failed"] if failed else []
         if done.failed_seasons:
@@ -404,8 +404,9 @@ def demo(out_dir: Path) -> None:
         make_tiny_rasters,
         make_zones,
     )
+    from .io.paths import output_folder
 
-    out_dir.mkdir(parents=True, exist_ok=True)
+    output_folder(out_dir)
     files = make_tiny_rasters(out_dir)
     files += make_mixed_grid_inputs(out_dir)
     files += make_level2_product(out_dir)

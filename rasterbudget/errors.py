@@ -6,7 +6,11 @@ Several classes also inherit a built-in so callers can catch either.
 
 
 class RasterBudgetError(Exception):
-    """Root of all rasterbudget errors."""
+    """Root of all rasterbudget errors. Its text is one line: line breaks that reach a message
+    from user input (a key, an id, a path) are shown escaped."""
+
+    def __str__(self) -> str:
+        return super().__str__().replace("\r", "\\r").replace("\n", "\\n")
 
 
 class RecipeError(RasterBudgetError, ValueError):

@@ -443,7 +443,10 @@ class Scene(_Strict):
             raise ValueError(
                 "acquisition time needs a time zone; write it in UTC, e.g. 2026-06-14T17:52:00Z"
             )
-        return value.astimezone(dt.UTC)
+        try:
+            return value.astimezone(dt.UTC)
+        except OverflowError:
+            raise ValueError(f"{value.isoformat()} is out of the calendar's range") from None
 
 
 class SeasonSettings(_Strict):
@@ -480,6 +483,15 @@ class Recipe(_Strict):
     season: list[SeasonSettings] = []
     zones: ZoneSettings | None = None
     path: Path | None = None
+
+    @model_validator(mode="after")
+    def _seasons_name_scenes_of_the_recipe(self) -> Recipe:
+        ids = {s.id for s in self.scene}
+        for season in self.season:
+            unknown = [i for i in season.scenes if i not in ids]
+            if unknown:
+                raise ValueError(f"season {season.id}: scene id(s) {unknown} are not in the recipe")
+        return self
 
 
 class ComparisonZones(_Strict):
@@ -642,7 +654,10 @@ def _acquired(scene: dict) -> dt.datetime | None:
             return None  # the model reports the bad time
     if not isinstance(value, dt.datetime) or value.tzinfo is None:
         return None
-    return value.astimezone(dt.UTC)
+    try:
+        return value.astimezone(dt.UTC)
+    except OverflowError:
+        return None  # the model reports it
 
 
 def _fill(text: str, key: str, scene: dict, source: str) -> str:
@@ -697,18 +712,39 @@ def _acquired_from_product(scene: dict, source: str, base: Path) -> dict:
     elevation = product.get("sun_elevation_deg", getattr(metadata, "sun_elevation", None))
     azimuth = product.get("sun_azimuth_deg", getattr(metadata, "sun_azimuth", None))
     day = scene.get("acquired_date", getattr(metadata, "acquisition_date", None))
-    band = next(iter((product.get("bands") or {}).values()), None)
+    if isinstance(day, str):
+        try:
+            day = dt.date.fromisoformat(day)
+        except ValueError:
+            return scene  # the model reports the bad date
+    bands = product.get("bands")
+    band = next(iter(bands.values()), None) if isinstance(bands, dict) else None
     if metadata is not None and band is None:
         first = next((b for b in metadata.bands.values() if b.file_name), None)
         band = None if first is None else str(Path(metadata.path).parent / first.file_name)
-    if None in (elevation, azimuth, day, band) or not isinstance(day, dt.date):
-        return scene  # the model asks for acquired_utc
+    angles_ok = all(
+        isinstance(v, int | float) and not isinstance(v, bool) and 0.0 <= v <= 360.0
+        for v in (elevation, azimuth)
+    )
+    if (
+        not angles_ok
+        or not isinstance(day, dt.date)
+        or isinstance(day, dt.datetime)
+        or not 1900 <= day.year <= 2200
+        or not isinstance(band, str)
+    ):
+        return scene  # the model asks for acquired_utc, or reports the bad value
+    from .io.paths import is_remote
+
     path = Path(band).expanduser()
-    path = path if path.is_absolute() else (base / path).resolve()
-    latitude, longitude = _raster_centre_lonlat(path, where)
+    if not is_remote(band):
+        path = path if path.is_absolute() else (base / path).resolve()
+    latitude, longitude = _raster_centre_lonlat(band if is_remote(band) else path, where)
     from .physics.solar import time_from_sun_angles
 
-    instant, mismatch = time_from_sun_angles(day, latitude, longitude, elevation, azimuth)
+    instant, mismatch = time_from_sun_angles(
+        day, latitude, longitude, float(elevation), float(azimuth)
+    )
     return scene | {
         "acquired_utc": instant,
         "acquired_from": (
@@ -722,14 +758,15 @@ def _acquired_from_product(scene: dict, source: str, base: Path) -> dict:
 def _tables_from(base: Path, scene: dict) -> dict:
     """Table paths of a scene made absolute (relative to the recipe's folder), so that the
     steps that read them need not know the recipe."""
-    hot_soil = (scene.get("anchors") or {}).get("hot_soil")
+    anchors = scene.get("anchors")
+    hot_soil = anchors.get("hot_soil") if isinstance(anchors, dict) else None
     if isinstance(hot_soil, dict) and isinstance(hot_soil.get("table"), str):
         path = Path(hot_soil["table"]).expanduser()
         hot_soil["table"] = str(path if path.is_absolute() else (base / path).resolve())
     return scene
 
 
-def _raster_centre_lonlat(path: Path, where: str) -> tuple[float, float]:
+def _raster_centre_lonlat(path: Path | str, where: str) -> tuple[float, float]:
     """Latitude and longitude of a raster's centre [degrees]."""
     import rasterio
     from rasterio.warp import transform as transform_points
@@ -767,12 +804,14 @@ def _with_placeholders(scene: dict, source: str) -> dict:
         for key in ("metadata", "stac_item"):
             if isinstance(product.get(key), str):
                 product[key] = _fill(product[key], f"product.{key}", scene, source)
-        for name, value in (product.get("bands") or {}).items():
+        bands = product.get("bands")
+        for name, value in (bands if isinstance(bands, dict) else {}).items():
             if isinstance(value, str):
                 product["bands"][name] = _fill(value, f"product.bands.{name}", scene, source)
     if isinstance(scene.get("daily_table"), str):
         scene["daily_table"] = _fill(scene["daily_table"], "daily_table", scene, source)
-    hot_soil = (scene.get("anchors") or {}).get("hot_soil")
+    anchors = scene.get("anchors")
+    hot_soil = anchors.get("hot_soil") if isinstance(anchors, dict) else None
     if isinstance(hot_soil, dict) and isinstance(hot_soil.get("table"), str):
         hot_soil["table"] = _fill(hot_soil["table"], "anchors.hot_soil.table", scene, source)
     return scene
@@ -798,8 +837,14 @@ def _daily_from_table(scene: dict, source: str, base: Path, cache: dict) -> dict
                 f"recipe {source}: scene {sid}, daily_table {path} does not exist; give a CSV "
                 "with a 'date' column (YYYY-MM-DD) and the [scene.daily] keys as columns."
             )
-        with path.open(newline="", encoding="utf-8") as f:
-            cache[path] = {row.get("date", ""): row for row in csv.DictReader(f)}
+        try:
+            with path.open(newline="", encoding="utf-8") as f:
+                cache[path] = {row.get("date", ""): row for row in csv.DictReader(f)}
+        except (UnicodeDecodeError, csv.Error, OSError) as err:
+            raise RecipeError(
+                f"recipe {source}: scene {sid}, daily_table {path} cannot be read as a CSV "
+                f"text file ({type(err).__name__}); give a UTF-8 CSV with a 'date' column."
+            ) from None
     when = _acquired(scene)
     if when is None:
         return scene  # the model reports the missing or bad acquired_utc

@@ -25,7 +25,7 @@ from .io.writers import write_text_atomic
 from .methods import METHODS
 from .recipe import Recipe, Scene
 from .scene.inputs import input_paths
-from .scene.run import RunOptions, run_scene
+from .scene.run import RunOptions, mark_failed, run_scene
 from .scene.summaries import rows_to_csv
 
 BATCH_TABLE = "batch.csv"
@@ -145,6 +145,8 @@ def run_batch(
                 )
         except RasterBudgetError as err:
             outcome = SceneOutcome(scene.id, "failed", time.perf_counter() - started, str(err))
+            if out_dir.is_dir():  # older outputs there are no longer this recipe's
+                mark_failed(scene.id, out_dir, {}, err)
         outcomes.append(outcome)
         if report is not None:
             report(outcome)
@@ -181,8 +183,13 @@ def run_recipe(
     """
     from .io.lock import output_lock
 
+    if recipe.zones is not None:  # a bad zone file is refused before any scene runs
+        from .recipe import resolve_path
+        from .season.zones import read_zone_features
+
+        read_zone_features(resolve_path(recipe, recipe.zones.path), recipe.zones.id_property)
     output_folder(settings.out_dir)
-    with output_lock(settings.out_dir):
+    with output_lock(settings.out_dir):  # one run per output folder
         return _run_recipe_locked(
             recipe, table, settings, on_scene, on_season, force, on_season_failed
         )

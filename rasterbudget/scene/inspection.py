@@ -114,6 +114,10 @@ def inspect_scene(
             data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
                 data["land_cover"], mapping
             )
+        if "land_cover" in data:  # the run's own check: some code of the class table
+            finite = np.isfinite(data["land_cover"])
+            known = table.known()[land_cover_codes(data["land_cover"])] & finite
+            stats["land_cover_known"] = np.array([finite.sum(), known.sum()])
         check_input_values(stats, tuple(sources))
     # albedo, NDVI, surface temperature, land cover and clouds from a product's bands
     data = derive_inputs(data, None if product is None else product.derive_facts)
@@ -189,6 +193,16 @@ def inspect_recipe(
 
     out: list[str] = []
     problems: list[tuple[str, str]] = []
+    if recipe.zones is not None:
+        from ..season.zones import read_zone_features
+
+        zone_path = resolve_path(recipe, recipe.zones.path)
+        try:
+            features, _ = read_zone_features(zone_path, recipe.zones.id_property)
+            out.append(f"zones {zone_path}: {len(features)} polygons")
+        except RasterBudgetError as err:
+            out.append(f"  PROBLEM: {err}")
+            problems.append(("zones", str(err)))
     for scene in recipe.scene:
         try:
             inspect_scene(recipe, scene, table, chunk_size, out)

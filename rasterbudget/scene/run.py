@@ -186,12 +186,12 @@ def run_scene(
             )
             outputs["manifest.json"] = write_manifest(out_dir, manifest)
     except BaseException as err:
-        _mark_failed(scene.id, out_dir, outputs, err)
+        mark_failed(scene.id, out_dir, outputs, err)
         raise
     return SceneResult(scene_id=scene.id, out_dir=out_dir, outputs=outputs, manifest=manifest)
 
 
-def _mark_failed(scene_id: str, out_dir: Path, written: dict, err: BaseException) -> None:
+def mark_failed(scene_id: str, out_dir: Path, written: dict, err: BaseException) -> None:
     """A failed scene keeps nothing of its run under a final name and no temporary file; where
     outputs of an earlier run remain, a manifest says the scene failed, so nothing presents them
     as current (best effort: the disk may be full)."""

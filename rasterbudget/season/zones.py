@@ -27,31 +27,91 @@ warnings.filterwarnings("ignore", message="Dataset has no geotransform", module=
 CUBIC_METRES_PER_ACRE_FOOT = 1233.48183754752  # 43,560 ft3 x 0.3048^3 m3 per ft3
 
 
-def load_zones(path: Path, id_property: str, grid_crs) -> tuple[list, list, list, list]:
-    """Zone ids, properties, original geometries and geometries in the grid's CRS."""
-    from rasterio.warp import transform_geom
-
+def read_zone_features(path: Path, id_property: str) -> tuple[list[dict], str]:
+    """The features of a GeoJSON zone file, each checked (a polygon with numeric coordinates
+    and a unique id), and the file's CRS; one line naming the feature where one is not."""
     if not path.is_file():
         raise RecipeError(f"zone file {path} does not exist; fix zones.path in the recipe.")
     try:
         collection = json.loads(path.read_text("utf-8"))
         features = collection["features"]
-    except (json.JSONDecodeError, KeyError, TypeError) as err:
+        if not isinstance(features, list):
+            raise TypeError("'features' is not a list")
+    except (json.JSONDecodeError, UnicodeDecodeError, KeyError, TypeError) as err:
         raise RecipeError(f"zone file {path} is not a GeoJSON FeatureCollection ({err}).") from None
-    source_crs = (collection.get("crs", {}) or {}).get("properties", {}).get("name", "EPSG:4326")
-    ids, properties, geometries = [], [], []
+    crs = collection.get("crs") if isinstance(collection.get("crs"), dict) else {}
+    source_crs = (crs.get("properties") or {}).get("name", "EPSG:4326")
+    ids = []
     for k, feature in enumerate(features):
+        where = f"zone file {path}: feature {k}"
+        if not isinstance(feature, dict):
+            raise RecipeError(f"{where} is not a GeoJSON Feature object.")
         props = feature.get("properties") or {}
-        if id_property not in props:
+        if not isinstance(props, dict) or id_property not in props:
             raise RecipeError(
-                f"zone file {path}: feature {k} has no property {id_property!r}; set "
-                "zones.id_property to the property holding each zone's id."
+                f"{where} has no property {id_property!r}; set zones.id_property to the property "
+                "holding each zone's id."
+            )
+        where = f"{where} ({id_property} {props[id_property]!r})"
+        geometry = feature.get("geometry")
+        kind = geometry.get("type") if isinstance(geometry, dict) else type(geometry).__name__
+        if kind not in POLYGON_TYPES:
+            raise RecipeError(
+                f"{where} has no polygon geometry (got {kind!r}); zones must be Polygon or "
+                "MultiPolygon features."
+            )
+        depth = 3 if geometry["type"] == "Polygon" else 4
+        if not _numeric_rings(geometry.get("coordinates"), depth):
+            raise RecipeError(
+                f"{where}: its coordinates are not rings of numeric [x, y] positions; fix the "
+                "geometry (e.g. a coordinate written as text)."
             )
         ids.append(str(props[id_property]))
-        properties.append(props)
-        geometries.append(transform_geom(source_crs, grid_crs, feature["geometry"]))
     if len(set(ids)) != len(ids):
         raise RecipeError(f"zone file {path}: zone ids in {id_property!r} are not unique.")
+    return features, source_crs
+
+
+#: Geometry types a zone may have.
+POLYGON_TYPES = ("Polygon", "MultiPolygon")
+
+
+def _numeric_rings(coordinates, depth: int) -> bool:
+    """Nested lists ``depth`` deep ending in positions of two or three real numbers."""
+    if depth == 1:
+        return (
+            isinstance(coordinates, list)
+            and len(coordinates) in (2, 3)
+            and all(
+                isinstance(c, int | float) and not isinstance(c, bool) and np.isfinite(c)
+                for c in coordinates
+            )
+        )
+    return (
+        isinstance(coordinates, list)
+        and len(coordinates) > 0
+        and all(_numeric_rings(c, depth - 1) for c in coordinates)
+    )
+
+
+def load_zones(path: Path, id_property: str, grid_crs) -> tuple[list, list, list, list]:
+    """Zone ids, properties, original geometries and geometries in the grid's CRS."""
+    from rasterio.errors import RasterioError
+    from rasterio.warp import transform_geom
+
+    features, source_crs = read_zone_features(path, id_property)
+    ids, properties, geometries = [], [], []
+    for feature in features:
+        props = feature.get("properties") or {}
+        ids.append(str(props[id_property]))
+        properties.append(props)
+        try:
+            geometries.append(transform_geom(source_crs, grid_crs, feature["geometry"]))
+        except (RasterioError, ValueError) as err:
+            raise RecipeError(
+                f"zone file {path}: zone {props[id_property]!r} cannot be brought to the grid's "
+                f"CRS from {source_crs} ({err})."
+            ) from None
     return ids, properties, [f["geometry"] for f in features], geometries
 
 
