@@ -11,6 +11,7 @@ finished scenes and redoes those whose inputs or parameters changed.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import time
@@ -19,7 +20,7 @@ from pathlib import Path
 
 from . import __version__
 from .catalog.classes import ClassTable
-from .errors import RasterBudgetError
+from .errors import OutputError, RasterBudgetError
 from .io.paths import is_remote, output_folder
 from .io.writers import write_text_atomic
 from .methods import METHODS
@@ -155,6 +156,19 @@ def run_batch(
     return outcomes
 
 
+@contextlib.contextmanager
+def _writing(what: str, out_dir: Path):
+    """An OS error while writing ``what`` becomes one line naming the folder."""
+    try:
+        yield
+    except OSError as err:
+        reason = err.strerror or str(err).splitlines()[0]
+        raise OutputError(
+            f"writing {what} into {out_dir} failed ({reason}); the scenes' outputs are complete; "
+            "free some space or check permissions and run again."
+        ) from None
+
+
 @dataclass
 class RecipeOutcome:
     """What a recipe run did: each scene's outcome, each season's manifest, the zone tables
@@ -223,11 +237,12 @@ def _run_recipe_locked(
     if settings.quicklook:
         from .report import write_report
 
-        done.report = write_report(
-            settings.out_dir,
-            [o.scene_id for o in outcomes if o.status != "failed"],
-            [m["season_id"] for m in done.seasons],
-        )
+        with _writing("the report", settings.out_dir):
+            done.report = write_report(
+                settings.out_dir,
+                [o.scene_id for o in outcomes if o.status != "failed"],
+                [m["season_id"] for m in done.seasons],
+            )
     return done
 
 

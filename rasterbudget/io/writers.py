@@ -290,8 +290,12 @@ def write_cog(
 def write_text_atomic(path: Path, text: str) -> Path:
     """Write a text file under a temporary name and rename it when complete."""
     partial = path.with_name(path.name + PARTIAL_SUFFIX)
-    partial.write_text(text, encoding="utf-8")
-    os.replace(partial, path)
+    try:
+        partial.write_text(text, encoding="utf-8")
+        os.replace(partial, path)
+    except BaseException:  # a full disk, an interrupt: no half-written file is left
+        partial.unlink(missing_ok=True)
+        raise
     return path
 
 
