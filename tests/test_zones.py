@@ -3,15 +3,24 @@
 from __future__ import annotations
 
 import csv
+import itertools
 import json
 
 import numpy as np
 import pytest
 import rasterio
-from pyproj import Geod
+from pyproj import Geod, Transformer
 from rasterio.transform import from_origin
 
-from rasterbudget.season.zones import CUBIC_METRES_PER_ACRE_FOOT, load_zones, zone_rows, zone_totals
+from rasterbudget.io.areas import cell_areas
+from rasterbudget.io.grid import Grid
+from rasterbudget.season.zones import (
+    CUBIC_METRES_PER_ACRE_FOOT,
+    load_zones,
+    polygon_area,
+    zone_rows,
+    zone_totals,
+)
 
 
 def _raster(path, data, crs, transform):
@@ -62,7 +71,11 @@ def test_projected_volumes_match_numpy_on_the_raster(tmp_path):
     basin = _box(500000.0, 4400000.0 - 120 * 30, 500000.0 + 75 * 30, 4400000.0)  # overlaps field
     zones = _zones(tmp_path / "z.geojson", "EPSG:32613", [("field", field), ("basin", basin)])
     ids, _, _, geometries = load_zones(zones, "zone_id", "EPSG:32613")
-    rows = {r["zone_id"]: r for r in zone_rows(ids, zone_totals(raster, geometries, 64), "et")}
+    areas = [polygon_area(g, "EPSG:32613") for g in geometries]
+    rows = {
+        r["zone_id"]: r for r in zone_rows(ids, zone_totals(raster, geometries, 64), "et", areas)
+    }
+    grid = Grid(rasterio.crs.CRS.from_epsg(32613), transform, 150, 120)
     # by hand: the field covers rows 5-39 and columns 15-44; the basin columns 0-74, all rows
     for zone, (rs, cs) in {
         "field": (slice(5, 40), slice(15, 45)),
@@ -70,12 +83,21 @@ def test_projected_volumes_match_numpy_on_the_raster(tmp_path):
     }.items():
         part = depth[rs, cs]
         ok = np.isfinite(part)
-        assert rows[zone]["pixels"] == part.size
-        assert rows[zone]["area_m2"] == pytest.approx(part.size * 900.0)
-        assert rows[zone]["valid_fraction"] == pytest.approx(ok.mean())
-        assert rows[zone]["mean_depth_mm"] == pytest.approx(part[ok].mean(), rel=1e-9)
+        r, c = np.mgrid[rs, cs]
+        cell = cell_areas(grid, r, c)  # ground areas: UTM's scale factor, 0.9996 on the meridian
+        assert rows[zone]["pixels"] == pytest.approx(part.size)
+        assert rows[zone]["area_in_grid_m2"] == pytest.approx(cell.sum(), rel=1e-9)
+        assert rows[zone]["area_m2"] == pytest.approx(cell.sum(), rel=1e-6)  # fully on the grid
+        assert rows[zone]["covered_share"] == pytest.approx(1.0, abs=1e-6)
+        assert rows[zone]["valid_share"] == pytest.approx(cell[ok].sum() / cell.sum())
+        mean = (part[ok] * cell[ok]).sum() / cell[ok].sum()
+        assert rows[zone]["mean_depth_mm"] == pytest.approx(mean, rel=1e-9)
         assert rows[zone]["volume_valid_pixels_m3"] == pytest.approx(
-            (part[ok] / 1000.0 * 900.0).sum(), rel=1e-9
+            (part[ok] / 1000.0 * cell[ok]).sum(), rel=1e-9
+        )
+        # volume = mean depth x the zone's true area on the grid
+        assert rows[zone]["volume_m3"] == pytest.approx(
+            rows[zone]["mean_depth_mm"] / 1000.0 * rows[zone]["area_in_grid_m2"], rel=1e-12
         )
         assert rows[zone]["volume_acre_feet"] == pytest.approx(
             rows[zone]["volume_m3"] / CUBIC_METRES_PER_ACRE_FOOT
@@ -95,8 +117,114 @@ def test_geographic_areas_are_geodesic(tmp_path):
     lons, lats = zip(*zone["coordinates"][0][:-1], strict=True)
     area, _ = Geod(ellps="WGS84").polygon_area_perimeter(lons, lats)
     # geodesic edges of the polygon versus parallels of the cells: far below 1e-4 at this size
-    assert row["area_m2"] == pytest.approx(abs(area), rel=1e-4)
+    assert row["area_in_grid_m2"] == pytest.approx(abs(area), rel=1e-4)
     assert row["volume_m3"] == pytest.approx(0.1 * abs(area), rel=1e-4)
+
+
+def _geodesic_area_of_map_polygon(ring, crs) -> float:
+    """Independent: the ring's edges cut into 64 pieces in map coordinates, to lon/lat, Geod."""
+    xy = np.asarray(ring, dtype=np.float64)
+    pieces = [
+        a + (b - a) * t
+        for a, b in itertools.pairwise(xy)
+        for t in np.linspace(0, 1, 64, endpoint=False)
+    ]
+    x, y = np.asarray(pieces).T
+    lon, lat = Transformer.from_crs(crs, "EPSG:4326", always_xy=True).transform(x, y)
+    area, _ = Geod(ellps="WGS84").polygon_area_perimeter(lon, lat)
+    return abs(area)
+
+
+#: (CRS, grid origin, cell size) of four projections; the zones are irregular polygons that cut
+#: cells, so their areas rest on exact coverage fractions and true cell areas.
+PROJECTIONS = {
+    "utm": ("EPSG:32613", (480000.0, 4430000.0), 30.0),
+    "web_mercator": ("EPSG:3857", (1_000_000.0, 8_450_000.0), 250.0),
+    "polar": ("EPSG:3413", (-200_000.0, -2_000_000.0), 250.0),
+    "geographic": ("EPSG:4326", (10.0, 60.0), 0.002),
+}
+
+
+@pytest.mark.parametrize("name", sorted(PROJECTIONS))
+def test_zone_areas_agree_with_geodesic_polygon_areas(tmp_path, name):
+    crs, (x0, y0), res = PROJECTIONS[name]
+    n = 200
+    raster = _raster(tmp_path / "et.tif", np.full((n, n), 3.0), crs, from_origin(x0, y0, res, res))
+    # a pentagon and a rotated quadrilateral, vertices off the cell corners
+    w = n * res
+    ring_a = [
+        (x0 + f * w, y0 - g * w)
+        for f, g in (
+            (0.11, 0.13),
+            (0.57, 0.10),
+            (0.73, 0.41),
+            (0.41, 0.66),
+            (0.09, 0.47),
+            (0.11, 0.13),
+        )
+    ]
+    ring_b = [
+        (x0 + f * w, y0 - g * w)
+        for f, g in ((0.55, 0.55), (0.93, 0.61), (0.87, 0.95), (0.51, 0.89), (0.55, 0.55))
+    ]
+    features = [
+        ("a", {"type": "Polygon", "coordinates": [ring_a]}),
+        ("b", {"type": "Polygon", "coordinates": [ring_b]}),
+    ]
+    zones = _zones(tmp_path / "z.geojson", crs, features)
+    ids, _, _, geometries = load_zones(zones, "zone_id", crs)
+    areas = [polygon_area(g, crs) for g in geometries]
+    rows = zone_rows(ids, zone_totals(raster, geometries, 64), "et", areas)
+    for row, ring in zip(rows, (ring_a, ring_b), strict=True):
+        expected = _geodesic_area_of_map_polygon(ring, crs)
+        assert row["area_in_grid_m2"] == pytest.approx(expected, rel=1e-3)  # acceptance: 0.1 %
+        assert row["area_m2"] == pytest.approx(expected, rel=1e-4)
+        assert row["mean_depth_mm"] == pytest.approx(3.0)
+        assert row["volume_m3"] == pytest.approx(3.0 / 1000.0 * row["area_in_grid_m2"])
+
+
+def test_utm_zone_means_agree_with_exactextract(tmp_path):
+    from exactextract import exact_extract
+
+    rng = np.random.default_rng(11)
+    depth = rng.gamma(4.0, 1.0, (150, 180))
+    depth[40:60, 30:80] = np.nan
+    transform = from_origin(480000.0, 4430000.0, 30.0, 30.0)
+    raster = _raster(tmp_path / "et.tif", depth, "EPSG:32613", transform)
+    ring = [
+        (480000.0 + x * 30, 4430000.0 - y * 30)
+        for x, y in (
+            (5.3, 7.7),
+            (120.2, 15.1),
+            (170.6, 90.4),
+            (60.1, 140.9),
+            (10.2, 100.3),
+            (5.3, 7.7),
+        )
+    ]
+    zones = _zones(
+        tmp_path / "z.geojson", "EPSG:32613", [("z", {"type": "Polygon", "coordinates": [ring]})]
+    )
+    ids, _, _, geometries = load_zones(zones, "zone_id", "EPSG:32613")
+    (row,) = zone_rows(ids, zone_totals(raster, geometries, 64), "et")
+    feature = {"type": "Feature", "properties": {}, "geometry": geometries[0]}
+    (theirs,) = exact_extract(str(raster), [feature], ["mean"], output="geojson")
+    # exactextract weighs by coverage only; ours by coverage x ground area (uniform to 1e-5 here)
+    assert row["mean_depth_mm"] == pytest.approx(theirs["properties"]["mean"], rel=1e-3)
+
+
+def test_a_zone_half_off_the_grid_says_so(tmp_path):
+    depth = np.full((100, 100), 2.0)
+    transform = from_origin(480000.0, 4430000.0, 30.0, 30.0)
+    raster = _raster(tmp_path / "et.tif", depth, "EPSG:32613", transform)
+    zone = _box(480000.0 + 50 * 30, 4430000.0 - 80 * 30, 480000.0 + 150 * 30, 4430000.0 - 20 * 30)
+    zones = _zones(tmp_path / "z.geojson", "EPSG:32613", [("half", zone)])
+    ids, _, _, geometries = load_zones(zones, "zone_id", "EPSG:32613")
+    (row,) = zone_rows(
+        ids, zone_totals(raster, geometries, 64), "et", [polygon_area(geometries[0], "EPSG:32613")]
+    )
+    assert row["covered_share"] == pytest.approx(0.5, rel=1e-4)
+    assert row["volume_m3"] == pytest.approx(0.002 * row["area_in_grid_m2"])
 
 
 def test_demo_season_zone_table(tmp_path):
@@ -121,7 +249,12 @@ def test_demo_season_zone_table(tmp_path):
     rows = list(csv.DictReader((out / "kessendry_summer_2026" / "zones.csv").open()))
     assert {r["zone_id"] for r in rows} >= {"field_A", "basin_west", "basin_east"}
     basins = [r for r in rows if r["zone_id"].startswith("basin")]
-    assert sum(int(r["pixels"]) for r in basins) == 300 * 400  # the two basins tile the scene
+    # the two basins tile the scene: their coverage fractions add up to every pixel
+    assert sum(float(r["pixels"]) for r in basins) == pytest.approx(300 * 400, rel=1e-9)
     features = json.loads((out / "kessendry_summer_2026" / "zones.geojson").read_text())
     assert len(features["features"]) == len(rows)
+    # RFC 7946: WGS84 longitude/latitude, no crs member; the demo lies near 40 N, 105 W
+    assert "crs" not in features
+    lon, lat = features["features"][0]["geometry"]["coordinates"][0][0]
+    assert -106.0 < lon < -104.0 and 39.0 < lat < 41.0
     assert (out / "kessendry_20260614" / "zones.csv").is_file()

@@ -76,33 +76,32 @@ ZONE_VARIABLES = ("current", "previous", "difference", "baseline_mean", "standar
 def zone_comparison_sums(
     values: np.ndarray,
     with_category: bool,
-    masks: list[tuple[int, np.ndarray]],
-    areas: np.ndarray,
+    coverage: list[tuple[int, np.ndarray, np.ndarray, np.ndarray, np.ndarray]],
     n_zones: int,
 ) -> np.ndarray:
     """Area-weighted sums per zone of one block of comparison values.
 
     ``values`` is (variables, rows, cols): the float variables, then the category layer when
-    ``with_category``. ``areas`` holds each row's cell area [m2]. Returns (3 + 2 n + 7, zones):
-    zone area, pixel count, categorised area, then per float variable its area-weighted sum and
-    its valid area, then the area of each category 1-7 [m2].
+    ``with_category``. ``coverage`` holds per zone touching the block its cells and their
+    coverage fraction x ground area (:func:`rasterbudget.season.zones.block_coverage`). Returns
+    (3 + 2 n + 7, zones): zone area, covered pixels, categorised area, then per float variable
+    its area-weighted sum and its valid area, then the area of each category 1-7 [m2].
     """
     n_float = values.shape[0] - int(with_category)
-    area = np.broadcast_to(areas[:, None], values.shape[1:])
     out = np.zeros((3 + 2 * n_float + 7, n_zones))
-    finite = np.isfinite(values[:n_float])
-    for k, inside in masks:
-        out[0, k] = area[inside].sum()
-        out[1, k] = inside.sum()
+    for k, rows, cols, share, weight in coverage:
+        out[0, k] = weight.sum()
+        out[1, k] = share.sum()
         for v in range(n_float):
-            ok = inside & finite[v]
-            out[3 + 2 * v, k] = (values[v][ok] * area[ok]).sum()
-            out[4 + 2 * v, k] = area[ok].sum()
+            picked = values[v][rows, cols]
+            ok = np.isfinite(picked)
+            out[3 + 2 * v, k] = (picked[ok] * weight[ok]).sum()
+            out[4 + 2 * v, k] = weight[ok].sum()
         if with_category:
-            codes = values[-1]
-            out[2, k] = area[inside & (codes > 0)].sum()
+            codes = values[-1][rows, cols]
+            out[2, k] = weight[codes > 0].sum()
             for c in range(1, 8):
-                out[3 + 2 * n_float + c - 1, k] = area[inside & (codes == c)].sum()
+                out[3 + 2 * n_float + c - 1, k] = weight[codes == c].sum()
     return out
 
 
@@ -116,7 +115,7 @@ def zone_comparison_rows(
     rows = []
     for k, zone in enumerate(ids):
         area, pixels, categorised = totals[0, k], totals[1, k], totals[2, k]
-        row: dict = {"zone_id": zone, "pixels": int(pixels), "area_m2": area}
+        row: dict = {"zone_id": zone, "pixels": round(float(pixels), 3), "area_m2": area}
         means = {}
         for v, name in enumerate(float_names):
             weighted, valid_area = totals[3 + 2 * v, k], totals[4 + 2 * v, k]
@@ -205,19 +204,13 @@ def zone_sums_of_block(
     (area-weighted sums [m2 x units], areas [m2]): the layers ``keep``, then the category layer
     ``category`` when there is one. A list so that the blocks' sums concatenate in row-major order
     and are added in that order afterwards (their last bits do not depend on the reduction)."""
-    from rasterio import windows
+    from .zones import block_coverage
 
-    from .zones import block_masks, cell_areas
-
-    (r0, r1), (c0, c1) = location
-    window = windows.Window(c0, r0, c1 - c0, r1 - r0)
-    transform = windows.transform(window, grid.transform)
-    masks = block_masks(geometries, boxes, transform, values.shape[1:])
+    coverage = block_coverage(geometries, boxes, grid, location)
     picked = values[keep]
     if category is not None:
         picked = np.concatenate([picked, values[[category]]])
-    areas = cell_areas(grid, slice(r0, r1))
-    return [zone_comparison_sums(picked, category is not None, masks, areas, len(geometries))]
+    return [zone_comparison_sums(picked, category is not None, coverage, len(geometries))]
 
 
 def _compared_grid(current: Path, previous: Path | None, baseline: list[Path]):
@@ -340,9 +333,13 @@ def run_compare(
         )
     zone_ids: list[str] = []
     if zones is not None:
+        from rasterio.warp import transform_geom
+
         from .zones import load_zones
 
-        zone_ids, zone_props, zone_original, zone_geoms = load_zones(zones[0], zones[1], grid.crs)
+        zone_ids, zone_props, _, zone_geoms = load_zones(zones[0], zones[1], grid.crs)
+        # zones.geojson in WGS84 longitude/latitude (RFC 7946)
+        zone_original = [transform_geom(grid.crs, "EPSG:4326", g) for g in zone_geoms]
     layout = BlockLayout.over(grid, chunk)
     block = block_size_for(layout.chunk)
     names = ["current"]

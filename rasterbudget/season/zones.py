@@ -1,10 +1,12 @@
 """Per-zone ET depth and volume from a polygon file (GeoJSON).
 
-Zones are burnt onto the output grid block by block (``rasterio.features.rasterize``, pixel
-centres inside a polygon), one zone at a time, so zones may overlap (fields inside
-sub-basins). Cell areas are exact on a projected grid and geodesic on a geographic grid
-(pyproj.Geod on each row's cell polygon). ``volume_m3`` counts the whole zone, its missing pixels
-at the zone's mean depth; ``volume_valid_pixels_m3`` only the valid pixels.
+Each cell counts with the exact share of it inside the polygon (exactextract's coverage
+fraction, computed block by block so memory stays bounded) times its ground area on the
+ellipsoid (:mod:`rasterbudget.io.areas`, true on any projection). Zones may overlap (fields
+inside sub-basins). Per zone: its true area (geodesic, of the polygon itself), the share of it
+on the grid, the shares of valid and of flagged cells (water, snow, built-up: the residual is no
+ET there), the coverage-weighted mean depth, ``volume_m3`` over the zone's part on the grid
+with missing cells at the mean depth, and ``volume_valid_pixels_m3`` over valid cells only.
 Volume = depth [mm] / 1000 x cell area [m2]; acre-feet = m3 / 1233.48 (1 acre-foot = 43,560 ft3,
 exact definition).
 """
@@ -12,17 +14,13 @@ exact definition).
 from __future__ import annotations
 
 import io
+import itertools
 import json
-import warnings
 from pathlib import Path
 
 import numpy as np
 
 from ..errors import RecipeError
-
-# rasterio's in-memory rasterize target warns before its transform is set (the masks are right).
-# A filter for that module only: catch_warnings() is not thread-safe under dask's threads.
-warnings.filterwarnings("ignore", message="Dataset has no geotransform", module="rasterio.features")
 
 CUBIC_METRES_PER_ACRE_FOOT = 1233.48183754752  # 43,560 ft3 x 0.3048^3 m3 per ft3
 
@@ -115,89 +113,105 @@ def load_zones(path: Path, id_property: str, grid_crs) -> tuple[list, list, list
     return ids, properties, [f["geometry"] for f in features], geometries
 
 
-def cell_areas(grid, rows: slice) -> np.ndarray:
-    """Area of each pixel of the given rows [m2]: exact when projected, geodesic when geographic."""
-    t = grid.transform
-    if not grid.crs.is_geographic:
-        return np.full(rows.stop - rows.start, abs(t.a * t.e))
-    from pyproj import Geod
-
-    geod = Geod(ellps="WGS84")
-    out = np.empty(rows.stop - rows.start)
-    for k, r in enumerate(range(rows.start, rows.stop)):
-        top, bottom = t.f + r * t.e, t.f + (r + 1) * t.e
-        lons = [t.c, t.c + t.a, t.c + t.a, t.c]
-        lats = [top, top, bottom, bottom]
-        area, _ = geod.polygon_area_perimeter(lons, lats)
-        out[k] = abs(area)
-    return out
+#: Per-zone sums carried through the blocks (rows of :func:`zone_block`'s result).
+SUMS = (
+    "pixels",  # covered pixels, fractional at the edges [-]
+    "valid_pixels",
+    "area_in_grid_m2",  # coverage x ground area of each cell [m2]
+    "valid_area_m2",
+    "valid_volume_m3",  # coverage x area x depth / 1000 over valid cells [m3]
+    "flagged_area_m2",  # of cells whose residual is flagged unreliable (water, snow, built-up)
+)
 
 
 def zone_block(
-    depth: np.ndarray, masks: list[tuple[int, np.ndarray]], areas: np.ndarray, n_zones: int
+    depth: np.ndarray,
+    coverage: list[tuple[int, np.ndarray, np.ndarray, np.ndarray, np.ndarray]],
+    n_zones: int,
+    flagged: np.ndarray | None = None,
 ) -> np.ndarray:
-    """Per zone: pixels, valid pixels, zone area [m2], valid area [m2], volume [m3]."""
-    area = np.broadcast_to(areas[:, None], depth.shape)
-    valid = np.isfinite(depth)
-    volume = np.where(valid, depth, 0.0) / 1000.0 * area
-    out = np.zeros((5, n_zones))
-    for k, inside in masks:
+    """Per zone the :data:`SUMS` of one block; ``coverage`` holds per zone touching the block
+    (zone index, rows, cols, coverage fraction, fraction x ground area [m2]) of its cells."""
+    out = np.zeros((len(SUMS), n_zones))
+    for k, rows, cols, share, weight in coverage:
+        values = depth[rows, cols]
+        valid = np.isfinite(values)
+        bad = np.zeros(values.shape, bool) if flagged is None else flagged[rows, cols]
         out[:, k] = (
-            inside.sum(),
-            (inside & valid).sum(),
-            area[inside].sum(),
-            area[inside & valid].sum(),
-            volume[inside].sum(),
+            share.sum(),
+            share[valid].sum(),
+            weight.sum(),
+            weight[valid].sum(),
+            (weight[valid] * values[valid]).sum() / 1000.0,
+            weight[bad].sum(),
         )
     return out
 
 
-def block_masks(
-    geometries: list, boxes: list[tuple[float, float, float, float]], transform, shape
-) -> list[tuple[int, np.ndarray]]:
-    """(zone index, pixel-centre mask) of the zones that touch one block.
+def block_coverage(
+    geometries: list, boxes: list, grid, location
+) -> list[tuple[int, np.ndarray, np.ndarray, np.ndarray, np.ndarray]]:
+    """Per zone touching one block: its cells' rows and columns in the block and their
+    coverage fraction (exactextract: the exact share of each cell inside the polygon) times
+    the cell's ground area (:func:`rasterbudget.io.areas.cell_areas`)."""
+    from exactextract import exact_extract
+    from exactextract.raster import NumPyRasterSource
 
-    ``boxes`` are the zones' bounds in the grid's CRS (skips the rasterizing of far zones);
-    ``transform`` is the block's own affine transform, ``shape`` its (rows, cols).
-    """
-    from rasterio import features
+    from ..io.areas import cell_areas
 
-    height, width = shape
-    left, top = transform.c, transform.f
-    right, bottom = left + width * transform.a, top + height * transform.e
-    masks = []
-    for k, (g, (x0, y0, x1, y1)) in enumerate(zip(geometries, boxes, strict=True)):
-        if x1 < left or x0 > right or y1 < bottom or y0 > top:
-            continue  # this zone misses the block
-        mask = features.rasterize(
-            [(g, 1)], out_shape=shape, transform=transform, fill=0, dtype="uint8"
-        ).astype(bool)
-        if mask.any():
-            masks.append((k, mask))
-    return masks
+    (r0, r1), (c0, c1) = location
+    t = grid.transform
+    left, top = t.c + c0 * t.a, t.f + r0 * t.e
+    right, bottom = t.c + c1 * t.a, t.f + r1 * t.e
+    touching = [
+        k
+        for k, (x0, y0, x1, y1) in enumerate(boxes)
+        if not (x1 < left or x0 > right or y1 < bottom or y0 > top)
+    ]
+    if not touching:
+        return []
+    # a NaN-free stand-in of the block: exactextract leaves out nodata cells, but the zone's
+    # area counts its missing cells too
+    frame = NumPyRasterSource(np.zeros((r1 - r0, c1 - c0)), left, bottom, right, top)
+    features = [{"type": "Feature", "properties": {}, "geometry": geometries[k]} for k in touching]
+    found = exact_extract(frame, features, ["cell_id", "coverage"], output="geojson")
+    out = []
+    for k, result in zip(touching, found, strict=True):
+        cells = np.asarray(result["properties"]["cell_id"], dtype=np.int64)
+        if cells.size == 0:
+            continue
+        share = np.asarray(result["properties"]["coverage"], dtype=np.float64)
+        rows, cols = np.divmod(cells, c1 - c0)
+        out.append((k, rows, cols, share, share * cell_areas(grid, rows + r0, cols + c0)))
+    return out
 
 
 def zone_sums_of_raster_block(
-    raster: Path, geometries: list, boxes: list, grid, location
+    raster: Path, geometries: list, boxes: list, grid, qa: Path | None, location
 ) -> list[np.ndarray]:
-    """A one-item list holding ``zone_block`` of one block of a depth raster [mm]: pixels,
-    valid pixels, zone area [m2], valid area [m2], volume [m3] per zone. A list so that the
-    blocks' sums concatenate in row-major order and are added in that order afterwards."""
+    """A one-item list holding ``zone_block`` of one block of a depth raster [mm]. A list so
+    that the blocks' sums concatenate in row-major order and are added in that order."""
     import rasterio
     from rasterio import windows
+
+    from ..catalog.qa import QA
 
     (r0, r1), (c0, c1) = location
     window = windows.Window(c0, r0, c1 - c0, r1 - r0)
     with rasterio.open(raster) as src:
         depth = src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
-        transform = src.window_transform(window)
-    masks = block_masks(geometries, boxes, transform, depth.shape)
-    return [zone_block(depth, masks, cell_areas(grid, slice(r0, r1)), len(geometries))]
+    flagged = None
+    if qa is not None:
+        with rasterio.open(qa) as src:
+            bits = src.read(1, window=window).astype(np.int64)
+        flagged = (bits & int(QA.RESIDUAL_UNRELIABLE_CLASS)) != 0
+    coverage = block_coverage(geometries, boxes, grid, location)
+    return [zone_block(depth, coverage, len(geometries), flagged)]
 
 
-def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
+def zone_totals(raster: Path, geometries: list, chunk: int, qa: Path | None = None) -> np.ndarray:
     """Sum zone_block over the raster's blocks of ``chunk`` pixels (one pass, bounded memory):
-    per zone pixels, valid pixels, area [m2], valid area [m2], volume [m3]."""
+    per zone the :data:`SUMS`."""
     import operator
 
     import rasterio
@@ -212,7 +226,7 @@ def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
     result = run_blockwise(
         BlockLayout(grid.height, grid.width, chunk),
         zone_sums_of_raster_block,
-        args=(raster, geometries, boxes, grid),
+        args=(raster, geometries, boxes, grid, qa),
         combine=operator.add,  # concatenates the blocks' one-item lists, in row-major order
     )
     # added block after block in row-major order, whatever the engine's reduction tree: the
@@ -220,25 +234,57 @@ def zone_totals(raster: Path, geometries: list, chunk: int) -> np.ndarray:
     return np.sum(result.summary, axis=0)
 
 
-def zone_rows(ids: list[str], totals: np.ndarray, variable: str) -> list[dict]:
+def polygon_area(geometry: dict, crs) -> float:
+    """Ground area of a Polygon or MultiPolygon given in ``crs`` [m2]: its rings' geodesic
+    areas (pyproj.Geod on WGS84), each edge densified so the ring follows the map's straight
+    lines."""
+    from pyproj import Geod, Transformer
+
+    geod = Geod(ellps="WGS84")
+    to_lonlat = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
+    coordinates = geometry["coordinates"]
+    polygons = [coordinates] if geometry["type"] == "Polygon" else coordinates
+    total = 0.0
+    for polygon in polygons:
+        for k, ring in enumerate(polygon):
+            xy = np.asarray(ring, dtype=np.float64)[:, :2]
+            steps = np.linspace(0.0, 1.0, 32, endpoint=False)
+            dense = np.concatenate(
+                [a + (b - a) * steps[:, None] for a, b in itertools.pairwise(xy)]
+            )
+            lon, lat = to_lonlat.transform(dense[:, 0], dense[:, 1])
+            area, _ = geod.polygon_area_perimeter(lon, lat)
+            total += abs(area) if k == 0 else -abs(area)  # holes after the outer ring
+    return total
+
+
+def zone_rows(
+    ids: list[str], totals: np.ndarray, variable: str, areas: list[float] | None = None
+) -> list[dict]:
+    """One row per zone: its true area, the share the grid covers, the shares valid and
+    flagged, mean depth and volumes."""
     rows = []
     for k, zone in enumerate(ids):
-        pixels, valid, area, valid_area, volume = totals[:, k]
-        depth = volume / valid_area * 1000.0 if valid_area else float("nan")
+        sums = dict(zip(SUMS, totals[:, k], strict=True))
+        in_grid, valid_area = sums["area_in_grid_m2"], sums["valid_area_m2"]
+        area = areas[k] if areas is not None else in_grid
+        depth = sums["valid_volume_m3"] / valid_area * 1000.0 if valid_area else float("nan")
+        # volume over the zone's part on the grid, its missing cells at the zone's mean depth
+        volume = depth / 1000.0 * in_grid if valid_area else float("nan")
         rows.append(
             {
                 "zone_id": zone,
                 "variable": variable,
-                "pixels": int(pixels),
+                "pixels": sums["pixels"],
                 "area_m2": area,
-                "valid_fraction": valid / pixels if pixels else float("nan"),
+                "area_in_grid_m2": in_grid,
+                "covered_share": in_grid / area if area else float("nan"),
+                "valid_share": valid_area / in_grid if in_grid else float("nan"),
+                "flagged_share": sums["flagged_area_m2"] / in_grid if in_grid else float("nan"),
                 "mean_depth_mm": depth,
-                # volume over the whole zone, with missing pixels at the zone's mean depth
-                "volume_m3": depth / 1000.0 * area if valid_area else float("nan"),
-                "volume_acre_feet": depth / 1000.0 * area / CUBIC_METRES_PER_ACRE_FOOT
-                if valid_area
-                else float("nan"),
-                "volume_valid_pixels_m3": volume,
+                "volume_m3": volume,
+                "volume_acre_feet": volume / CUBIC_METRES_PER_ACRE_FOOT,
+                "volume_valid_pixels_m3": sums["valid_volume_m3"],
             }
         )
     return rows
@@ -265,6 +311,7 @@ def write_zone_tables(
 def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
     """Zone tables for each (folder, variable) target that exists under ``settings.out_dir``."""
     import rasterio
+    from rasterio.warp import transform_geom
 
     from ..io.engine import effective_chunk_size
     from ..recipe import resolve_path
@@ -277,12 +324,20 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
             continue
         with rasterio.open(raster) as src:
             crs = src.crs
-        ids, props, original, geometries = load_zones(
+        ids, props, _, geometries = load_zones(
             resolve_path(recipe, spec.path), spec.id_property, crs
         )
-        totals = zone_totals(raster, geometries, effective_chunk_size(settings.chunk_size))
+        qa = settings.out_dir / folder / "qa_flags.tif"
+        totals = zone_totals(
+            raster,
+            geometries,
+            effective_chunk_size(settings.chunk_size),
+            qa if qa.is_file() else None,
+        )
+        areas = [polygon_area(g, crs.to_wkt()) for g in geometries]
+        lonlat = [transform_geom(crs, "EPSG:4326", g) for g in geometries]
         write_zone_tables(
-            settings.out_dir / folder, zone_rows(ids, totals, variable), props, original
+            settings.out_dir / folder, zone_rows(ids, totals, variable, areas), props, lonlat
         )
         written.append(settings.out_dir / folder / "zones.csv")
     return written
