@@ -457,9 +457,21 @@ class SeasonSettings(_Strict):
     end: dt.date
     scenes: list[str] = Field(min_length=1)
     weather: str  # CSV daily weather table, relative to the recipe
-    fraction: Literal["reference_et_fraction", "evaporative_fraction"] = "reference_et_fraction"
+    fraction: str = "reference_et_fraction"  # the scene raster interpolated between scenes
     reference: Literal["short", "tall"] = "tall"
     station_elevation_m: float | None = None
+
+    @field_validator("fraction")
+    @classmethod
+    def _a_fraction_of_reference_et(cls, value: str) -> str:
+        if value != "reference_et_fraction":
+            raise ValueError(
+                f"{value!r} cannot be carried between scenes: a season multiplies the fraction "
+                "by each day's reference ET, so it must be a fraction of reference ET "
+                "(evaporative fraction is a share of available energy, and gave totals about 30 % "
+                "off); use 'reference_et_fraction'"
+            )
+        return value
 
     @model_validator(mode="after")
     def _ordered(self) -> SeasonSettings:

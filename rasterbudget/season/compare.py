@@ -17,6 +17,7 @@ import numpy as np
 
 from ..errors import InputRasterError
 from ..io.paths import output_folder
+from ..scene.manifest import sha256_of, versions
 
 #: Category code -> name (codes of the drought_category raster; 0 = no value).
 CATEGORIES = {
@@ -213,6 +214,21 @@ def zone_sums_of_block(
     return [zone_comparison_sums(picked, category is not None, coverage, len(geometries))]
 
 
+def _folder_state(raster: Path) -> str:
+    """The state of the run that made a raster: its folder manifest's status, if any."""
+    from .totals import scene_state
+
+    if not (raster.parent / "manifest.json").is_file():
+        return "no manifest beside it"
+    return scene_state(raster.parent)
+
+
+def _zone_spec(zones) -> dict | None:
+    if zones is None:
+        return None
+    return {"path": str(zones[0]), "sha256": sha256_of(Path(zones[0])), "id_property": zones[1]}
+
+
 def _compared_grid(current: Path, previous: Path | None, baseline: list[Path]):
     """The grid, units and variable name of the compared rasters; refuses a missing raster or
     one off the grid of ``current``."""
@@ -226,6 +242,12 @@ def _compared_grid(current: Path, previous: Path | None, baseline: list[Path]):
             raise InputRasterError(
                 f"raster {p} does not exist; give the path of an output "
                 "GeoTIFF (e.g. OUT/<season>/et_season.tif), or run the recipe that makes it."
+            )
+        state = _folder_state(Path(p))
+        if state not in ("complete", "no manifest beside it"):
+            raise InputRasterError(
+                f"raster {p} comes from a run that is not complete ({state}); run its recipe "
+                "again before comparing it."
             )
     with rasterio.open(current) as src:
         grid = Grid(src.crs, src.transform, src.width, src.height)
@@ -398,6 +420,12 @@ def run_compare(
         "previous": str(previous) if previous else None,
         "baseline": [str(p) for p in baseline],
         "outputs": [f"{n}.tif" for n in written],
+        "inputs": {
+            str(p): {"sha256": sha256_of(Path(p)), "state": _folder_state(Path(p))}
+            for p in [current, *([previous] if previous else []), *baseline]
+        },
+        "parameters": {"chunk_size": chunk, "tile_size": tile_size, "zones": _zone_spec(zones)},
+        "versions": versions(),
     }
     _write_tables(summary, out_dir, grid, result, names, summarised, tile_size, zone_tables)
     write_text_atomic(out_dir / "compare.json", json.dumps(_json_ready(summary), indent=2) + "\n")

@@ -23,6 +23,7 @@ from ..errors import RecipeError
 from ..io.paths import output_folder
 from ..physics import reference_et
 from ..physics.constants import ZERO_CELSIUS
+from ..scene.manifest import sha256_of, versions
 
 #: season_qa bits
 SEASON_FILLED = 1  # at least one scene was missing at this pixel and was filled in time
@@ -158,6 +159,23 @@ def scene_state(folder: Path) -> str:
     return f"{status}: {manifest.get('error', '')}".rstrip(": ")
 
 
+def season_inputs(out_dir: Path, scenes: list, rasters: list[Path], weather: Path) -> dict:
+    """Each scene raster's path and SHA-256 with its scene's fingerprint, and the weather
+    table's: what the season was made from."""
+    entries = []
+    for scene, raster in zip(scenes, rasters, strict=True):
+        manifest = json.loads((out_dir / scene.id / "manifest.json").read_text())
+        entries.append(
+            {
+                "scene_id": scene.id,
+                "raster": str(raster),
+                "sha256": sha256_of(raster),
+                "scene_fingerprint": manifest.get("fingerprint"),
+            }
+        )
+    return {"scenes": entries, "weather": {"path": str(weather), "sha256": sha256_of(weather)}}
+
+
 def write_season_manifest(path: Path, content: dict) -> None:
     from ..io.writers import write_text_atomic
 
@@ -286,6 +304,9 @@ def run_season(recipe, season, settings) -> dict:
         "mean_et_season_mm": float(mean_total),
         "weights_mm": {"lead": weights.lead.tolist(), "trail": weights.trail.tolist()},
         "outputs": outputs,
+        "parameters": season.model_dump(mode="json"),
+        "inputs": season_inputs(settings.out_dir, chosen, paths, _resolve(recipe, season.weather)),
+        "versions": versions(),
         "caution": "Season totals interpolate between a few scenes; see the README's cautions.",
     }
     write_season_manifest(out_dir / "manifest.json", content)
