@@ -456,7 +456,9 @@ class SeasonSettings(_Strict):
     start: dt.date
     end: dt.date
     scenes: list[str] = Field(min_length=1)
-    weather: str  # CSV daily weather table, relative to the recipe
+    weather: str | None = None  # CSV daily weather table, relative to the recipe
+    # or one raster of daily reference ET [mm d-1] per day: a path with {date} (YYYYMMDD)
+    reference_et_rasters: str | None = None
     fraction: str = "reference_et_fraction"  # the scene raster interpolated between scenes
     reference: Literal["short", "tall"] = "tall"
     station_elevation_m: float | None = None
@@ -475,6 +477,13 @@ class SeasonSettings(_Strict):
 
     @model_validator(mode="after")
     def _ordered(self) -> SeasonSettings:
+        if (self.weather is None) == (self.reference_et_rasters is None):
+            raise ValueError(
+                "give weather (a daily table) or reference_et_rasters (one raster per day), "
+                "one of them"
+            )
+        if self.reference_et_rasters is not None and "{date}" not in self.reference_et_rasters:
+            raise ValueError("reference_et_rasters needs {date} in its path (one file per day)")
         if self.end < self.start:
             raise ValueError(f"end ({self.end}) is before start ({self.start})")
         return self

@@ -3,6 +3,7 @@ were made from, their parameters), the fraction rule, and comparisons of failed 
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import json
 
@@ -36,7 +37,7 @@ def test_the_season_manifest_records_versions_inputs_and_parameters(season_run):
             assert entry["sha256"] == hashlib.sha256(f.read()).hexdigest()
         scene = json.loads((season_run / entry["scene_id"] / "manifest.json").read_text())
         assert entry["scene_fingerprint"] == scene["fingerprint"]
-    assert len(manifest["inputs"]["weather"]["sha256"]) == 64
+    assert len(manifest["inputs"]["weather"][0]["sha256"]) == 64
 
 
 def test_a_season_of_evaporative_fraction_is_refused_with_the_reason():
@@ -68,3 +69,63 @@ def test_a_comparison_records_its_inputs_and_refuses_a_failed_run(season_run, tm
         manifest.write_text(saved)
     assert result.exit_code == 2, result.output
     assert "not complete (failed: disk full)" in result.output
+
+
+def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(season_run, tmp_path):
+    """One raster of daily reference ET per day, each uniform at the station's value of that
+    day: the season total equals the station-table season's, pixel for pixel."""
+    import shutil
+    import tomllib
+
+    import numpy as np
+    import rasterio
+
+    from rasterbudget.season.totals import daily_reference_et, season_days
+
+    manifest = json.loads((season_run / SEASON / "manifest.json").read_text())
+    recipe_path = ROOT / "workflows" / "demo_season.toml"
+    data = tomllib.loads(recipe_path.read_text())
+    season = data["season"][0]
+    days = season_days(
+        dt.date.fromisoformat(manifest["start"]), dt.date.fromisoformat(manifest["end"])
+    )
+    with rasterio.open(season_run / SEASON / "et_season.tif") as src:
+        profile = src.profile | {"dtype": "float32", "count": 1}
+        station = src.read(1)
+    # the station's daily values, as the station season computed them
+    from rasterbudget.io.grid import Grid
+    from rasterbudget.recipe import load_recipe
+    from rasterbudget.scene.constants import scene_centre_lonlat
+
+    recipe = load_recipe(recipe_path)
+    grid = Grid(profile["crs"], profile["transform"], profile["width"], profile["height"])
+    _, lat = scene_centre_lonlat(grid)
+    elevation = season.get("station_elevation_m", recipe.scene[0].overpass.station_elevation_m)
+    etr = daily_reference_et(
+        (recipe_path.parent / season["weather"]).resolve(),
+        days,
+        np.radians(lat),
+        elevation,
+        season.get("reference", "tall"),
+    )
+    folder = tmp_path / "etr"
+    folder.mkdir()
+    for day, value in zip(days, etr, strict=True):
+        with rasterio.open(folder / f"etr_{day:%Y%m%d}.tif", "w", **profile) as dst:
+            dst.write(np.full((profile["height"], profile["width"]), value, np.float32), 1)
+    out = tmp_path / "out"
+    shutil.copytree(season_run, out)
+    # the same recipe with the rasters instead of the table, its paths made absolute
+    edited = tmp_path / "season.toml"
+    text = recipe_path.read_text().replace(
+        'weather = "', 'reference_et_rasters = "' + str(folder / "etr_{date}.tif") + '"\n# was "', 1
+    )
+    edited.write_text(text.replace('"../', f'"{ROOT}/'))
+    result = CliRunner().invoke(main, ["run", str(edited), "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output
+    gridded = json.loads((out / SEASON / "manifest.json").read_text())
+    assert gridded["reference_et"] == "gridded daily rasters"
+    with rasterio.open(out / SEASON / "et_season.tif") as src:
+        np.testing.assert_allclose(src.read(1), station, rtol=1e-6, equal_nan=True)
+    # float32 rasters of the daily values: the reference total within float32 rounding
+    assert gridded["reference_et_total_mm"] == pytest.approx(etr.sum(), rel=1e-6)

@@ -32,34 +32,45 @@ SEASON_EMPTY = 2  # no valid scene at all: no total
 
 @dataclass(frozen=True)
 class SeasonWeights:
-    """Scalar day weights [mm] of each scene (lead, trail) and scene pair (a, b)."""
+    """Day weights [mm] of each scene (lead, trail) and scene pair (a, b): scalars per scene
+    with a station's reference ET, or per pixel (trailing pixel axes) with gridded reference ET."""
 
-    lead: np.ndarray  # (S,) reference ET of the days before scene i (fraction held constant)
-    trail: np.ndarray  # (S,) reference ET of the days from scene i on
-    a: np.ndarray  # (S, S) weight of f_i for the days between scenes i < j
-    b: np.ndarray  # (S, S) weight of f_j for the days between scenes i < j
+    lead: np.ndarray  # (S, ...) reference ET of the days before scene i (fraction held constant)
+    trail: np.ndarray  # (S, ...) reference ET of the days from scene i on
+    a: np.ndarray  # (S, S, ...) weight of f_i for the days between scenes i < j
+    b: np.ndarray  # (S, S, ...) weight of f_j for the days between scenes i < j
 
 
 def season_weights(
     scene_days: list[dt.date], days: list[dt.date], etr: np.ndarray
 ) -> SeasonWeights:
-    """Day weights for scenes (sorted by date) over the season's days with their reference ET."""
+    """Day weights for scenes (sorted by date) over the season's days with their reference ET,
+    ``etr`` of shape (days,) for a station or (days, rows, cols) for a grid."""
     n = len(scene_days)
+    pixels = etr.shape[1:]
     t = np.array([(d - days[0]).days for d in days], dtype=float)
     ts = np.array([(d - days[0]).days for d in scene_days], dtype=float)
-    lead = np.array([etr[t < ts[i]].sum() for i in range(n)])
-    trail = np.array([etr[t >= ts[i]].sum() for i in range(n)])
-    a = np.zeros((n, n))
-    b = np.zeros((n, n))
+    lead = np.stack([etr[t < ts[i]].sum(axis=0) for i in range(n)])
+    trail = np.stack([etr[t >= ts[i]].sum(axis=0) for i in range(n)])
+    a = np.zeros((n, n, *pixels))
+    b = np.zeros((n, n, *pixels))
+    shape = (-1,) + (1,) * len(pixels)
     for i in range(n):
         for j in range(i + 1, n):
             inside = (t >= ts[i]) & (t < ts[j])
             if ts[j] == ts[i]:
                 continue
-            w = (t[inside] - ts[i]) / (ts[j] - ts[i])
-            a[i, j] = ((1.0 - w) * etr[inside]).sum()
-            b[i, j] = (w * etr[inside]).sum()
+            w = ((t[inside] - ts[i]) / (ts[j] - ts[i])).reshape(shape)
+            a[i, j] = ((1.0 - w) * etr[inside]).sum(axis=0)
+            b[i, j] = (w * etr[inside]).sum(axis=0)
     return SeasonWeights(lead, trail, a, b)
+
+
+def _at(weights: np.ndarray, index: np.ndarray) -> np.ndarray:
+    """``weights[index]`` per pixel: a scalar per scene, or the pixel's own weight."""
+    if weights.ndim == 1:
+        return weights[index]
+    return np.take_along_axis(weights, index[None], axis=0)[0]
 
 
 def season_total_block(fractions: np.ndarray, w: SeasonWeights) -> tuple[np.ndarray, ...]:
@@ -76,11 +87,12 @@ def season_total_block(fractions: np.ndarray, w: SeasonWeights) -> tuple[np.ndar
         total += np.where(first, f * w.lead[k], 0.0)
         later = v & (last >= 0)
         prev = np.maximum(last, 0)
-        total += np.where(later, f_last * w.a[prev, k] + f * w.b[prev, k], 0.0)
+        a_k, b_k = w.a[:, k], w.b[:, k]
+        total += np.where(later, f_last * _at(a_k, prev) + f * _at(b_k, prev), 0.0)
         f_last = np.where(v, f, f_last)
         last = np.where(v, k, last)
     count = valid.sum(axis=0)
-    total = np.where(last >= 0, total + f_last * w.trail[np.maximum(last, 0)], np.nan)
+    total = np.where(last >= 0, total + f_last * _at(w.trail, np.maximum(last, 0)), np.nan)
     qa = np.where(count < n, SEASON_FILLED, 0) | np.where(count == 0, SEASON_EMPTY, 0)
     return total, count.astype(np.uint8), qa.astype(np.uint8)
 
@@ -159,9 +171,9 @@ def scene_state(folder: Path) -> str:
     return f"{status}: {manifest.get('error', '')}".rstrip(": ")
 
 
-def season_inputs(out_dir: Path, scenes: list, rasters: list[Path], weather: Path) -> dict:
+def season_inputs(out_dir: Path, scenes: list, rasters: list[Path], weather: list[Path]) -> dict:
     """Each scene raster's path and SHA-256 with its scene's fingerprint, and the weather
-    table's: what the season was made from."""
+    table's (or the daily reference-ET rasters'): what the season was made from."""
     entries = []
     for scene, raster in zip(scenes, rasters, strict=True):
         manifest = json.loads((out_dir / scene.id / "manifest.json").read_text())
@@ -173,7 +185,30 @@ def season_inputs(out_dir: Path, scenes: list, rasters: list[Path], weather: Pat
                 "scene_fingerprint": manifest.get("fingerprint"),
             }
         )
-    return {"scenes": entries, "weather": {"path": str(weather), "sha256": sha256_of(weather)}}
+    return {
+        "scenes": entries,
+        "weather": [{"path": str(w), "sha256": sha256_of(w)} for w in weather],
+    }
+
+
+def gridded_reference_et(recipe, season, days: list[dt.date], grid) -> list:
+    """How to read each day's reference-ET raster onto the season's grid (bilinear where it is
+    on another grid); every day's file must exist, have a CRS and overlap the grid."""
+    from ..io.grid import check_input, input_source
+
+    sources = []
+    for day in days:
+        name = season.reference_et_rasters.replace("{date}", day.strftime("%Y%m%d"))
+        path = _resolve(recipe, name)
+        if not path.is_file():
+            raise RecipeError(
+                f"season {season.id}: the reference-ET raster of {day} ({path}) does not exist; "
+                "season.reference_et_rasters needs one file per day of the season ({date} = "
+                "YYYYMMDD)."
+            )
+        check_input(path, "daily reference ET", grid)
+        sources.append(input_source(path, "reference_et", grid))
+    return sources
 
 
 def write_season_manifest(path: Path, content: dict) -> None:
@@ -197,14 +232,20 @@ def grid_check(paths: list[Path]) -> None:
 
 
 def season_block_layers(
-    paths: list[Path], weights: SeasonWeights, reference_total: float, location
+    paths: list[Path],
+    weights: SeasonWeights | None,
+    reference_total: float | None,
+    gridded: tuple | None,
+    location,
 ) -> np.ndarray:
     """The season layers of one block, a float64 array (4, rows, cols): season ET [mm], mean
     fraction [-] (season ET over the season's reference ET ``reference_total`` [mm]),
     valid-scene count and season QA bits.
 
     ``paths`` are the scenes' fraction rasters sorted by date; ``location`` is the block's
-    ((row0, row1), (col0, col1)).
+    ((row0, row1), (col0, col1)). With gridded daily reference ET, ``gridded`` holds (the
+    day rasters' :class:`~rasterbudget.io.grid.InputSource` list, the scene dates, the days)
+    and the weights and reference total are made per pixel from the block's own values.
     """
     import rasterio
     from rasterio.windows import Window
@@ -215,10 +256,18 @@ def season_block_layers(
     for p in paths:
         with rasterio.open(p) as src:
             stack.append(src.read(1, window=window).astype(np.float64))
+    if gridded is not None:
+        from ..io.grid import read_window
+
+        sources, scene_days, days = gridded
+        etr = np.stack([read_window(src, slice(r0, r1), slice(c0, c1)) for src in sources])
+        weights = season_weights(scene_days, days, etr)
+        reference_total = etr.sum(axis=0)
     total, count, qa = season_total_block(np.stack(stack), weights)
     # the mean fraction is divided here, in float64, as the whole-array division did
+    reference = np.broadcast_to(reference_total, total.shape)
     return np.stack(
-        [total, total / reference_total, count.astype(np.float64), qa.astype(np.float64)]
+        [total, total / reference, count.astype(np.float64), qa.astype(np.float64), reference]
     )
 
 
@@ -262,10 +311,23 @@ def run_season(recipe, season, settings) -> dict:
         if season.station_elevation_m is not None
         else chosen[0].overpass.station_elevation_m
     )
-    etr = daily_reference_et(
-        Path(_resolve(recipe, season.weather)), days, math.radians(lat), elevation, season.reference
-    )
-    weights = season_weights([s.acquired_utc.date() for s in chosen], days, etr)
+    scene_days = [s.acquired_utc.date() for s in chosen]
+    gridded = None
+    if season.reference_et_rasters is not None:
+        sources = gridded_reference_et(recipe, season, days, grid)
+        gridded = (sources, scene_days, days)
+        weights, reference_total = None, None
+        etr = None
+    else:
+        etr = daily_reference_et(
+            Path(_resolve(recipe, season.weather)),
+            days,
+            math.radians(lat),
+            elevation,
+            season.reference,
+        )
+        weights = season_weights(scene_days, days, etr)
+        reference_total = float(etr.sum())
 
     out_dir = output_folder(settings.out_dir, season.id)
     remove_stale_partials(out_dir)
@@ -280,16 +342,16 @@ def run_season(recipe, season, settings) -> dict:
         result = run_blockwise(
             layout,
             season_block_layers,
-            args=(paths, weights, float(etr.sum())),
-            layers=4,
+            args=(paths, weights, reference_total, gridded),
+            layers=5,
             dtype=np.float64,
             targets=[Target(k, w.dtype, w) for k, w in enumerate(writers)],
             # dask's own nanmean over the whole array: its summation order, hence its last bits,
             # are the manifest's mean
-            reduce_array=lambda array: [da.nanmean(array[0])],
+            reduce_array=lambda array: [da.nanmean(array[0]), da.nanmean(array[4])],
             outputs=writers,
         )
-    (mean_total,) = result.reductions
+    mean_total, mean_reference = result.reductions
     outputs = {w.path.name: str(w.path) for w in writers}
     content = {
         "season_id": season.id,
@@ -300,12 +362,22 @@ def run_season(recipe, season, settings) -> dict:
         "reference_surface": season.reference,
         "scenes": [s.id for s in chosen],
         "scene_dates": [s.acquired_utc.date() for s in chosen],
-        "reference_et_total_mm": float(etr.sum()),
+        "reference_et_total_mm": float(mean_reference),  # the grid's mean when gridded
+        "reference_et": "gridded daily rasters" if gridded is not None else "station table",
         "mean_et_season_mm": float(mean_total),
-        "weights_mm": {"lead": weights.lead.tolist(), "trail": weights.trail.tolist()},
+        "weights_mm": None
+        if weights is None
+        else {"lead": weights.lead.tolist(), "trail": weights.trail.tolist()},
         "outputs": outputs,
         "parameters": season.model_dump(mode="json"),
-        "inputs": season_inputs(settings.out_dir, chosen, paths, _resolve(recipe, season.weather)),
+        "inputs": season_inputs(
+            settings.out_dir,
+            chosen,
+            paths,
+            [Path(src.path) for src in gridded[0]]
+            if gridded is not None
+            else [_resolve(recipe, season.weather)],
+        ),
         "versions": versions(),
         "caution": "Season totals interpolate between a few scenes; see the README's cautions.",
     }
