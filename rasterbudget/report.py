@@ -147,7 +147,17 @@ def _scene_section(folder: Path) -> str:
         zones = list(csv.DictReader((folder / "zones.csv").open()))
         parts.append(
             "<h3>Zones (daily ET)</h3>"
-            + _table(zones, ["zone_id", "area_m2", "valid_fraction", "mean_depth_mm", "volume_m3"])
+            + _table(
+                zones,
+                [
+                    "zone_id",
+                    "area_m2",
+                    "covered_share",
+                    "valid_share",
+                    "mean_depth_mm",
+                    "volume_m3",
+                ],
+            )
         )
     return "\n".join(parts)
 
@@ -183,7 +193,9 @@ def _season_section(folder: Path) -> str:
                 [
                     "zone_id",
                     "area_m2",
-                    "valid_fraction",
+                    "covered_share",
+                    "valid_share",
+                    "flagged_share",
                     "mean_depth_mm",
                     "volume_m3",
                     "volume_acre_feet",
@@ -191,6 +203,35 @@ def _season_section(folder: Path) -> str:
             )
         )
     return "\n".join(parts)
+
+
+def _zone_series_section(out_dir: Path) -> str:
+    """Every zone's ET at the scene dates (one curve per zone), from ``zones_series.csv``."""
+    import datetime as dt
+
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    path = out_dir / "zones_series.csv"
+    if not path.is_file():
+        return ""
+    rows = list(csv.DictReader(path.open()))
+    fig, ax = plt.subplots(figsize=(8, 4))
+    for zone in sorted({r["zone_id"] for r in rows}):
+        mine = sorted((r for r in rows if r["zone_id"] == zone), key=lambda r: r["date"])
+        dates = [dt.date.fromisoformat(r["date"]) for r in mine]
+        ax.plot(dates, [float(r["et_daily_mm"]) for r in mine], marker="o", label=zone)
+    ax.set_ylabel("daily ET, zone mean [mm/d]")
+    ax.legend(fontsize=7, ncol=2)
+    fig.autofmt_xdate()
+    fig.tight_layout()
+    return (
+        "<h2>Zone time series</h2><p>Each zone's coverage-weighted mean daily ET at the scene "
+        "dates (<code>zones_series.csv</code>; monthly and water-year totals in "
+        "<code>zones_monthly.csv</code>).</p>" + _img(_png(fig), "zone time series")
+    )
 
 
 STYLE = """body{font-family:sans-serif;max-width:1100px;margin:2em auto;color:#222}
@@ -231,6 +272,7 @@ def write_report(out_dir: Path, scene_ids: list[str], season_ids: list[str]) -> 
         for s in season_ids
         if (out_dir / s / "manifest.json").is_file()
     ]
+    sections.append(_zone_series_section(out_dir))
     page = (
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
         f"<title>rasterbudget report</title><style>{STYLE}</style></head><body>"

@@ -12,11 +12,14 @@ finished scenes and redoes those whose inputs or parameters changed.
 from __future__ import annotations
 
 import contextlib
+import datetime as dt
 import hashlib
 import json
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
+
+import numpy as np
 
 from . import __version__
 from .catalog.classes import ClassTable
@@ -156,6 +159,30 @@ def run_batch(
     return outcomes
 
 
+def _zone_series(recipe, settings, outcomes, seasons: list[dict]) -> list[Path]:
+    """``zones_series.csv`` (zone x scene date) and ``zones_monthly.csv`` (zone x month and
+    water year, per season) under OUT."""
+    from .season.series import monthly_rows, scene_rows, write_series, zone_fraction_means
+    from .season.totals import season_days
+
+    done = [o.scene_id for o in outcomes if o.status != "failed"]
+    scenes = [s for s in recipe.scene if s.id in done]
+    rows = scene_rows(settings.out_dir, scenes, zone_fraction_means(recipe, settings, done))
+    monthly = []
+    for manifest in seasons:
+        etr = manifest.get("reference_et_daily_mm")
+        if etr is None:  # gridded reference ET: no zone-level daily series
+            continue
+        days = season_days(
+            dt.date.fromisoformat(str(manifest["start"])),
+            dt.date.fromisoformat(str(manifest["end"])),
+        )
+        monthly += monthly_rows(
+            manifest["season_id"], rows, manifest["scenes"], days, np.asarray(etr)
+        )
+    return write_series(settings.out_dir, rows, monthly) if rows else []
+
+
 @contextlib.contextmanager
 def _writing(what: str, out_dir: Path):
     """An OS error while writing ``what`` becomes one line naming the folder."""
@@ -234,6 +261,7 @@ def _run_recipe_locked(
         made = {m["season_id"] for m in done.seasons}
         zone_targets += [(s.id, "et_season") for s in recipe.season if s.id in made]
         done.zone_tables = run_zones(recipe, settings, zone_targets)
+        done.zone_tables += _zone_series(recipe, settings, outcomes, done.seasons)
     if settings.quicklook:
         from .report import write_report
 

@@ -364,6 +364,7 @@ def run_season(recipe, season, settings) -> dict:
         "scene_dates": [s.acquired_utc.date() for s in chosen],
         "reference_et_total_mm": float(mean_reference),  # the grid's mean when gridded
         "reference_et": "gridded daily rasters" if gridded is not None else "station table",
+        "reference_et_daily_mm": None if etr is None else [float(v) for v in etr],
         "mean_et_season_mm": float(mean_total),
         "weights_mm": None
         if weights is None

@@ -1,0 +1,136 @@
+"""Zone time series of a recipe run: per zone and scene date the zone's ET, reference-ET
+fraction and shares; per zone, season and month (and water year) the ET totals.
+
+Scene rows come from each scene's zone table and a zone pass over its reference-ET fraction.
+Monthly totals spread each season over its days at the zone level: the zone-mean fraction of
+each scene, interpolated linearly in time between scenes and held before the first and after
+the last (as the pixels are), times the station's daily reference ET. Where pixels miss scenes
+unevenly, this differs slightly from the zone mean of the pixel totals (``et_season``): the
+season's zone table holds the latter.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as dt
+from pathlib import Path
+
+import numpy as np
+
+SERIES_TABLE = "zones_series.csv"
+MONTHLY_TABLE = "zones_monthly.csv"
+
+
+def scene_rows(out_dir: Path, scenes: list, fractions: dict[str, dict]) -> list[dict]:
+    """One row per zone and completed scene (sorted by date)."""
+    rows = []
+    for scene in sorted(scenes, key=lambda s: s.acquired_utc):
+        table = out_dir / scene.id / "zones.csv"
+        if not table.is_file():
+            continue
+        with table.open(newline="", encoding="utf-8") as f:
+            for zone in csv.DictReader(f):
+                rows.append(
+                    {
+                        "zone_id": zone["zone_id"],
+                        "scene_id": scene.id,
+                        "date": scene.acquired_utc.date().isoformat(),
+                        "et_daily_mm": float(zone["mean_depth_mm"]),
+                        "reference_et_fraction": fractions.get(scene.id, {}).get(
+                            zone["zone_id"], float("nan")
+                        ),
+                        "valid_share": float(zone["valid_share"]),
+                        "flagged_share": float(zone["flagged_share"]),
+                        "covered_share": float(zone["covered_share"]),
+                    }
+                )
+    return rows
+
+
+def zone_fraction_means(recipe, settings, scene_ids: list[str]) -> dict[str, dict[str, float]]:
+    """Per scene and zone the coverage-and-area weighted mean reference-ET fraction."""
+    import rasterio
+
+    from ..io.engine import effective_chunk_size
+    from ..recipe import resolve_path
+    from .zones import load_zones, zone_rows, zone_totals
+
+    out: dict[str, dict[str, float]] = {}
+    for sid in scene_ids:
+        raster = settings.out_dir / sid / "reference_et_fraction.tif"
+        if not raster.is_file():
+            continue
+        with rasterio.open(raster) as src:
+            crs = src.crs
+        ids, _, _, geometries = load_zones(
+            resolve_path(recipe, recipe.zones.path), recipe.zones.id_property, crs
+        )
+        totals = zone_totals(raster, geometries, effective_chunk_size(settings.chunk_size))
+        rows = zone_rows(ids, totals, "reference_et_fraction")
+        # mean_depth_mm is the weighted mean of the raster's values (here a fraction, not mm)
+        out[sid] = {r["zone_id"]: r["mean_depth_mm"] for r in rows}
+    return out
+
+
+def daily_zone_et(
+    scene_dates: list[dt.date], fractions: list[float], days: list[dt.date], etr: np.ndarray
+) -> np.ndarray:
+    """A zone's daily ET [mm d-1]: its scene fractions interpolated linearly over the days (held
+    before the first and after the last valid scene) times each day's reference ET."""
+    known = [(d, f) for d, f in zip(scene_dates, fractions, strict=True) if np.isfinite(f)]
+    if not known:
+        return np.full(len(days), np.nan)
+    x = np.array([(d - days[0]).days for d, _ in known], dtype=float)
+    y = np.array([f for _, f in known])
+    t = np.arange(len(days), dtype=float)
+    return np.interp(t, x, y) * etr  # np.interp holds the ends
+
+
+def water_year(day: dt.date) -> int:
+    """The water year a day belongs to: October to September, named by the year it ends in
+    (the U.S. convention; common practice)."""
+    return day.year + 1 if day.month >= 10 else day.year
+
+
+def monthly_rows(
+    season_id: str, rows: list[dict], scene_ids: list[str], days: list[dt.date], etr: np.ndarray
+) -> list[dict]:
+    """Per zone the season's ET and reference ET by month and by water year [mm]."""
+    out = []
+    zones = sorted({r["zone_id"] for r in rows})
+    for zone in zones:
+        mine = sorted(
+            (r for r in rows if r["zone_id"] == zone and r["scene_id"] in scene_ids),
+            key=lambda r: r["date"],
+        )
+        dates = [dt.date.fromisoformat(r["date"]) for r in mine]
+        fractions = [r["reference_et_fraction"] for r in mine]
+        daily = daily_zone_et(dates, fractions, days, etr)
+        for key, label in ((lambda d: f"{d:%Y-%m}", "month"), (water_year, "water_year")):
+            groups: dict = {}
+            for day, et, ref in zip(days, daily, etr, strict=True):
+                groups.setdefault(key(day), []).append((et, ref))
+            for period, values in groups.items():
+                et_sum = float(np.sum([v[0] for v in values]))
+                out.append(
+                    {
+                        "season_id": season_id,
+                        "zone_id": zone,
+                        "period": label,
+                        "value": str(period),
+                        "days": len(values),
+                        "et_mm": et_sum,
+                        "reference_et_mm": float(np.sum([v[1] for v in values])),
+                    }
+                )
+    return out
+
+
+def write_series(out_dir: Path, scene: list[dict], monthly: list[dict]) -> list[Path]:
+    from ..io.writers import write_text_atomic
+    from ..scene.summaries import rows_to_csv
+
+    written = [write_text_atomic(out_dir / SERIES_TABLE, rows_to_csv(scene))]
+    if monthly:
+        written.append(write_text_atomic(out_dir / MONTHLY_TABLE, rows_to_csv(monthly)))
+    return written
