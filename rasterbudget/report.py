@@ -36,6 +36,18 @@ def _file_img(path: Path, alt: str) -> str:
     return _img(f"data:image/png;base64,{data}", alt)
 
 
+#: Zone-table columns shown in the report (zones.csv has more).
+ZONE_COLUMNS = [
+    "zone_id",
+    "area_m2",
+    "covered_share",
+    "valid_share",
+    "flagged_share",
+    "mean_depth_mm",
+    "volume_m3",
+]
+
+
 def _table(rows: list[dict], columns: list[str]) -> str:
     head = "".join(f"<th>{html.escape(c)}</th>" for c in columns)
     body = []
@@ -145,20 +157,7 @@ def _scene_section(folder: Path) -> str:
     parts.append("<h3>QA flags set</h3>" + _table(qa, ["bit", "name", "pixels"]))
     if (folder / "zones.csv").is_file():
         zones = list(csv.DictReader((folder / "zones.csv").open()))
-        parts.append(
-            "<h3>Zones (daily ET)</h3>"
-            + _table(
-                zones,
-                [
-                    "zone_id",
-                    "area_m2",
-                    "covered_share",
-                    "valid_share",
-                    "mean_depth_mm",
-                    "volume_m3",
-                ],
-            )
-        )
+        parts.append("<h3>Zones (daily ET)</h3>" + _table(zones, ZONE_COLUMNS))
     return "\n".join(parts)
 
 
@@ -186,22 +185,7 @@ def _season_section(folder: Path) -> str:
     ]
     if (folder / "zones.csv").is_file():
         zones = list(csv.DictReader((folder / "zones.csv").open()))
-        parts.append(
-            "<h3>Zones</h3>"
-            + _table(
-                zones,
-                [
-                    "zone_id",
-                    "area_m2",
-                    "covered_share",
-                    "valid_share",
-                    "flagged_share",
-                    "mean_depth_mm",
-                    "volume_m3",
-                    "volume_acre_feet",
-                ],
-            )
-        )
+        parts.append("<h3>Zones</h3>" + _table(zones, [*ZONE_COLUMNS, "volume_acre_feet"]))
     return "\n".join(parts)
 
 
