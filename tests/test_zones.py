@@ -258,3 +258,40 @@ def test_demo_season_zone_table(tmp_path):
     lon, lat = features["features"][0]["geometry"]["coordinates"][0][0]
     assert -106.0 < lon < -104.0 and 39.0 < lat < 41.0
     assert (out / "kessendry_20260614" / "zones.csv").is_file()
+
+
+def test_flagged_cells_are_reported_apart_not_mixed_into_et(tmp_path):
+    """Water (QA bit 10) inside a field: its residual is no ET; the field's mean and volume
+    leave it out, and its residual volume is reported apart."""
+    from rasterbudget.catalog.qa import QA
+
+    depth = np.full((60, 60), 4.0)
+    depth[20:30, 20:30] = 9.0  # a pond's residual
+    transform = from_origin(480000.0, 4430000.0, 30.0, 30.0)
+    raster = _raster(tmp_path / "et.tif", depth, "EPSG:32613", transform)
+    qa = np.zeros((60, 60), dtype=np.uint16)
+    qa[20:30, 20:30] = QA.RESIDUAL_UNRELIABLE_CLASS
+    with rasterio.open(
+        tmp_path / "qa.tif",
+        "w",
+        driver="GTiff",
+        width=60,
+        height=60,
+        count=1,
+        dtype="uint16",
+        crs="EPSG:32613",
+        transform=transform,
+    ) as dst:
+        dst.write(qa, 1)
+    zone = _box(480000.0, 4430000.0 - 60 * 30, 480000.0 + 60 * 30, 4430000.0)
+    zones = _zones(tmp_path / "z.geojson", "EPSG:32613", [("field", zone)])
+    ids, _, _, geometries = load_zones(zones, "zone_id", "EPSG:32613")
+    (row,) = zone_rows(ids, zone_totals(raster, geometries, 32, tmp_path / "qa.tif"), "et")
+    assert row["mean_depth_mm"] == pytest.approx(4.0)  # the pond's 9 mm left out
+    assert row["flagged_share"] == pytest.approx(100 / 3600, rel=1e-6)
+    assert row["volume_m3"] == pytest.approx(
+        0.004 * row["area_in_grid_m2"] * (1 - row["flagged_share"]), rel=1e-9
+    )
+    assert row["flagged_residual_volume_m3"] == pytest.approx(
+        0.009 * row["area_in_grid_m2"] * row["flagged_share"], rel=1e-4
+    )

@@ -5,8 +5,10 @@ fraction, computed block by block so memory stays bounded) times its ground area
 ellipsoid (:mod:`rasterbudget.io.areas`, true on any projection). Zones may overlap (fields
 inside sub-basins). Per zone: its true area (geodesic, of the polygon itself), the share of it
 on the grid, the shares of valid and of flagged cells (water, snow, built-up: the residual is no
-ET there), the coverage-weighted mean depth, ``volume_m3`` over the zone's part on the grid
-with missing cells at the mean depth, and ``volume_valid_pixels_m3`` over valid cells only.
+ET there), the coverage-weighted mean depth over valid unflagged cells, ``volume_m3`` over the
+zone's unflagged part on the grid with missing cells at the mean depth,
+``volume_valid_pixels_m3`` over valid unflagged cells only, and apart the residual over flagged
+cells (``flagged_residual_volume_m3``), which is no ET estimate and is never mixed in.
 Volume = depth [mm] / 1000 x cell area [m2]; acre-feet = m3 / 1233.48 (1 acre-foot = 43,560 ft3,
 exact definition).
 """
@@ -118,9 +120,10 @@ SUMS = (
     "pixels",  # covered pixels, fractional at the edges [-]
     "valid_pixels",
     "area_in_grid_m2",  # coverage x ground area of each cell [m2]
-    "valid_area_m2",
-    "valid_volume_m3",  # coverage x area x depth / 1000 over valid cells [m3]
+    "valid_area_m2",  # valid cells whose residual is an ET estimate
+    "valid_volume_m3",  # coverage x area x depth / 1000 over those cells [m3]
     "flagged_area_m2",  # of cells whose residual is flagged unreliable (water, snow, built-up)
+    "flagged_volume_m3",  # the residual over flagged cells with a value: reported apart
 )
 
 
@@ -135,8 +138,9 @@ def zone_block(
     out = np.zeros((len(SUMS), n_zones))
     for k, rows, cols, share, weight in coverage:
         values = depth[rows, cols]
-        valid = np.isfinite(values)
+        finite = np.isfinite(values)
         bad = np.zeros(values.shape, bool) if flagged is None else flagged[rows, cols]
+        valid, apart = finite & ~bad, finite & bad
         out[:, k] = (
             share.sum(),
             share[valid].sum(),
@@ -144,6 +148,7 @@ def zone_block(
             weight[valid].sum(),
             (weight[valid] * values[valid]).sum() / 1000.0,
             weight[bad].sum(),
+            (weight[apart] * values[apart]).sum() / 1000.0,
         )
     return out
 
@@ -269,8 +274,9 @@ def zone_rows(
         in_grid, valid_area = sums["area_in_grid_m2"], sums["valid_area_m2"]
         area = areas[k] if areas is not None else in_grid
         depth = sums["valid_volume_m3"] / valid_area * 1000.0 if valid_area else float("nan")
-        # volume over the zone's part on the grid, its missing cells at the zone's mean depth
-        volume = depth / 1000.0 * in_grid if valid_area else float("nan")
+        # volume over the zone's unflagged part on the grid, missing cells at the mean depth;
+        # flagged cells (water, snow, built-up) are reported apart, never filled silently
+        volume = depth / 1000.0 * (in_grid - sums["flagged_area_m2"]) if valid_area else np.nan
         rows.append(
             {
                 "zone_id": zone,
@@ -285,6 +291,8 @@ def zone_rows(
                 "volume_m3": volume,
                 "volume_acre_feet": volume / CUBIC_METRES_PER_ACRE_FOOT,
                 "volume_valid_pixels_m3": sums["valid_volume_m3"],
+                # the residual over flagged cells: not an ET estimate (README, QA bit 10)
+                "flagged_residual_volume_m3": sums["flagged_volume_m3"],
             }
         )
     return rows
