@@ -295,3 +295,40 @@ def test_flagged_cells_are_reported_apart_not_mixed_into_et(tmp_path):
     assert row["flagged_residual_volume_m3"] == pytest.approx(
         0.009 * row["area_in_grid_m2"] * row["flagged_share"], rel=1e-4
     )
+
+
+@pytest.mark.parametrize("driver, suffix", [("GPKG", ".gpkg"), ("ESRI Shapefile", ".shp")])
+def test_zones_from_geopackage_and_shapefile_equal_the_geojson(tmp_path, driver, suffix):
+    import shapely
+
+    depth = np.random.default_rng(3).uniform(1.0, 5.0, (80, 80))
+    transform = from_origin(480000.0, 4430000.0, 30.0, 30.0)
+    raster = _raster(tmp_path / "et.tif", depth, "EPSG:32613", transform)
+    ring = [
+        (480100.0, 4429100.0),
+        (481900.0, 4429300.0),
+        (481500.0, 4428000.0),
+        (480100.0, 4429100.0),
+    ]
+    geojson = _zones(
+        tmp_path / "z.geojson", "EPSG:32613", [("tri", {"type": "Polygon", "coordinates": [ring]})]
+    )
+    other = tmp_path / f"z{suffix}"
+    from pyogrio import raw  # the raw writer: no GeoDataFrame needed
+
+    raw.write(
+        other,
+        geometry=np.array([shapely.to_wkb(shapely.Polygon(ring))], dtype=object),
+        field_data=[np.array(["tri"], dtype=object)],
+        fields=["zone_id"],
+        crs="EPSG:32613",
+        driver=driver,
+        geometry_type="Polygon",
+    )
+    rows = []
+    for path in (geojson, other):
+        ids, _, _, geometries = load_zones(path, "zone_id", "EPSG:32613")
+        rows.append(zone_rows(ids, zone_totals(raster, geometries, 64), "et")[0])
+    assert rows[1]["zone_id"] == "tri"
+    assert rows[1]["mean_depth_mm"] == pytest.approx(rows[0]["mean_depth_mm"], rel=1e-12)
+    assert rows[1]["area_in_grid_m2"] == pytest.approx(rows[0]["area_in_grid_m2"], rel=1e-12)

@@ -32,15 +32,10 @@ def read_zone_features(path: Path, id_property: str) -> tuple[list[dict], str]:
     and a unique id), and the file's CRS; one line naming the feature where one is not."""
     if not path.is_file():
         raise RecipeError(f"zone file {path} does not exist; fix zones.path in the recipe.")
-    try:
-        collection = json.loads(path.read_text("utf-8"))
-        features = collection["features"]
-        if not isinstance(features, list):
-            raise TypeError("'features' is not a list")
-    except (json.JSONDecodeError, UnicodeDecodeError, KeyError, TypeError) as err:
-        raise RecipeError(f"zone file {path} is not a GeoJSON FeatureCollection ({err}).") from None
-    crs = collection.get("crs") if isinstance(collection.get("crs"), dict) else {}
-    source_crs = (crs.get("properties") or {}).get("name", "EPSG:4326")
+    if path.suffix.lower() in (".geojson", ".json"):
+        features, source_crs = _geojson_features(path)
+    else:
+        features, source_crs = _ogr_features(path)
     ids = []
     for k, feature in enumerate(features):
         where = f"zone file {path}: feature {k}"
@@ -70,6 +65,44 @@ def read_zone_features(path: Path, id_property: str) -> tuple[list[dict], str]:
     if len(set(ids)) != len(ids):
         raise RecipeError(f"zone file {path}: zone ids in {id_property!r} are not unique.")
     return features, source_crs
+
+
+def _geojson_features(path: Path) -> tuple[list, str]:
+    """The features of a GeoJSON file and its CRS (its ``crs`` member, else EPSG:4326)."""
+    try:
+        collection = json.loads(path.read_text("utf-8"))
+        features = collection["features"]
+        if not isinstance(features, list):
+            raise TypeError("'features' is not a list")
+    except (json.JSONDecodeError, UnicodeDecodeError, KeyError, TypeError) as err:
+        raise RecipeError(f"zone file {path} is not a GeoJSON FeatureCollection ({err}).") from None
+    crs = collection.get("crs") if isinstance(collection.get("crs"), dict) else {}
+    return features, (crs.get("properties") or {}).get("name", "EPSG:4326")
+
+
+def _ogr_features(path: Path) -> tuple[list, str]:
+    """The features of any vector file GDAL/OGR reads (GeoPackage, shapefile, ...), as GeoJSON
+    feature dicts, and its CRS (pyogrio; shapely for the geometries)."""
+    import shapely
+    from pyogrio import raw
+    from pyogrio.errors import DataSourceError
+
+    try:
+        meta, _, geometries, fields = raw.read(path)
+    except (DataSourceError, OSError, ValueError) as err:
+        reason = str(err).splitlines()[0]
+        raise RecipeError(f"zone file {path} cannot be read as vector data ({reason}).") from None
+    if meta.get("crs") is None:
+        raise RecipeError(f"zone file {path} has no CRS; assign one (e.g. with ogr2ogr -a_srs).")
+    features = []
+    for k, wkb in enumerate(geometries):
+        properties = {
+            str(name): (values[k].item() if hasattr(values[k], "item") else values[k])
+            for name, values in zip(meta["fields"], fields, strict=True)
+        }
+        geometry = None if wkb is None else shapely.geometry.mapping(shapely.from_wkb(wkb))
+        features.append({"type": "Feature", "properties": properties, "geometry": geometry})
+    return json.loads(json.dumps(features)), meta["crs"]  # tuples to lists, as GeoJSON's
 
 
 #: Geometry types a zone may have.
