@@ -494,6 +494,10 @@ class ZoneSettings(_Strict):
 
     path: str
     id_property: str = "zone_id"
+    # on request: ET of flagged cells (water, snow, built-up) as this multiple of the run's
+    # reference ET, in columns of its own (FAO-56 Table 12, shallow open water: Kc 1.05 of the
+    # grass reference, about 0.85 of the tall one; from memory, common practice)
+    flagged_substitute: float | None = Field(None, gt=0.0, le=1.5)
 
 
 class Recipe(_Strict):

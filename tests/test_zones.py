@@ -332,3 +332,16 @@ def test_zones_from_geopackage_and_shapefile_equal_the_geojson(tmp_path, driver,
     assert rows[1]["zone_id"] == "tri"
     assert rows[1]["mean_depth_mm"] == pytest.approx(rows[0]["mean_depth_mm"], rel=1e-12)
     assert rows[1]["area_in_grid_m2"] == pytest.approx(rows[0]["area_in_grid_m2"], rel=1e-12)
+
+
+def test_a_requested_substitute_for_flagged_cells_is_its_own_column():
+    from rasterbudget.season.zones import with_substitute
+
+    row = {"flagged_share": 0.1, "area_in_grid_m2": 1.0e6, "volume_m3": 4000.0}
+    (out,) = with_substitute([row], 0.85, 10.0)  # 10 mm of reference ET that day
+    assert out["flagged_substitute_volume_m3"] == pytest.approx(0.85 * 0.010 * 1.0e5)
+    assert out["volume_with_substitute_m3"] == pytest.approx(4000.0 + 850.0)
+    assert out["volume_m3"] == 4000.0  # the ET volume itself is unchanged
+    assert "zones.flagged_substitute" in out["flagged_substitute"]
+    (unknown,) = with_substitute([row], 0.85, None)  # no reference ET: said, not guessed
+    assert np.isnan(unknown["flagged_substitute_volume_m3"])

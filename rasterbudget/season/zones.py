@@ -331,6 +331,38 @@ def zone_rows(
     return rows
 
 
+def reference_depth(folder: Path) -> float | None:
+    """The reference ET of a scene's day or a season's days [mm], from its manifest."""
+    try:
+        manifest = json.loads((folder / "manifest.json").read_text())
+    except (OSError, ValueError):
+        return None
+    if "season_id" in manifest:
+        return manifest.get("reference_et_total_mm")
+    return (manifest.get("reference_et") or {}).get("daily_mm")
+
+
+def with_substitute(rows: list[dict], coefficient: float, reference_mm: float | None) -> list:
+    """Rows with the flagged cells' substitute ET (``coefficient`` x reference ET) as a volume
+    of its own and added to the zone's volume in a separate column; stated in each row."""
+    out = []
+    for row in rows:
+        flagged_area = row["flagged_share"] * row["area_in_grid_m2"]
+        if reference_mm is None or not np.isfinite(flagged_area):
+            substitute = float("nan")
+        else:
+            substitute = coefficient * reference_mm / 1000.0 * flagged_area
+        out.append(
+            row
+            | {
+                "flagged_substitute": f"{coefficient} x reference ET (zones.flagged_substitute)",
+                "flagged_substitute_volume_m3": substitute,
+                "volume_with_substitute_m3": row["volume_m3"] + substitute,
+            }
+        )
+    return out
+
+
 def write_zone_tables(
     out_dir: Path, rows: list[dict], properties: list[dict], geometries: list
 ) -> None:
@@ -377,8 +409,11 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
         )
         areas = [polygon_area(g, crs.to_wkt()) for g in geometries]
         lonlat = [transform_geom(crs, "EPSG:4326", g) for g in geometries]
-        write_zone_tables(
-            settings.out_dir / folder, zone_rows(ids, totals, variable, areas), props, lonlat
-        )
+        rows = zone_rows(ids, totals, variable, areas)
+        if spec.flagged_substitute is not None:
+            rows = with_substitute(
+                rows, spec.flagged_substitute, reference_depth(settings.out_dir / folder)
+            )
+        write_zone_tables(settings.out_dir / folder, rows, props, lonlat)
         written.append(settings.out_dir / folder / "zones.csv")
     return written
