@@ -457,7 +457,8 @@ class SeasonSettings(_Strict):
     end: dt.date
     scenes: list[str] = Field(min_length=1)
     weather: str | None = None  # CSV daily weather table, relative to the recipe
-    # or one raster of daily reference ET [mm d-1] per day: a path with {date} (YYYYMMDD)
+    # or daily reference ET rasters [mm d-1]: one per day, a path with {date} (YYYYMMDD), or
+    # one multi-band file whose band descriptions are the dates (YYYY-MM-DD)
     reference_et_rasters: str | None = None
     fraction: str = "reference_et_fraction"  # the scene raster interpolated between scenes
     reference: Literal["short", "tall"] = "tall"
@@ -482,8 +483,6 @@ class SeasonSettings(_Strict):
                 "give weather (a daily table) or reference_et_rasters (one raster per day), "
                 "one of them"
             )
-        if self.reference_et_rasters is not None and "{date}" not in self.reference_et_rasters:
-            raise ValueError("reference_et_rasters needs {date} in its path (one file per day)")
         if self.end < self.start:
             raise ValueError(f"end ({self.end}) is before start ({self.start})")
         return self

@@ -71,9 +71,13 @@ def test_a_comparison_records_its_inputs_and_refuses_a_failed_run(season_run, tm
     assert "not complete (failed: disk full)" in result.output
 
 
-def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(season_run, tmp_path):
-    """One raster of daily reference ET per day, each uniform at the station's value of that
-    day: the season total equals the station-table season's, pixel for pixel."""
+@pytest.mark.parametrize("layout", ["a file per day", "one multi-band stack"])
+def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(
+    season_run, tmp_path, layout
+):
+    """Daily reference ET rasters (a file per day, or one stack with a band per day), each day
+    uniform at the station's value: the season total equals the station-table season's, pixel
+    for pixel."""
     import shutil
     import tomllib
 
@@ -110,15 +114,26 @@ def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(seas
     )
     folder = tmp_path / "etr"
     folder.mkdir()
-    for day, value in zip(days, etr, strict=True):
-        with rasterio.open(folder / f"etr_{day:%Y%m%d}.tif", "w", **profile) as dst:
-            dst.write(np.full((profile["height"], profile["width"]), value, np.float32), 1)
+    shape = (profile["height"], profile["width"])
+    if layout == "a file per day":
+        pattern = str(folder / "etr_{date}.tif")
+        for day, value in zip(days, etr, strict=True):
+            with rasterio.open(folder / f"etr_{day:%Y%m%d}.tif", "w", **profile) as dst:
+                dst.write(np.full(shape, value, np.float32), 1)
+    else:
+        pattern = str(folder / "etr_stack.tif")
+        stack = profile | {"count": len(days), "tiled": False}
+        stack.pop("blockxsize", None), stack.pop("blockysize", None)
+        with rasterio.open(pattern, "w", **stack) as dst:
+            for k, (day, value) in enumerate(zip(days, etr, strict=True), start=1):
+                dst.write(np.full(shape, value, np.float32), k)
+                dst.set_band_description(k, day.isoformat())
     out = tmp_path / "out"
     shutil.copytree(season_run, out)
     # the same recipe with the rasters instead of the table, its paths made absolute
     edited = tmp_path / "season.toml"
     text = recipe_path.read_text().replace(
-        'weather = "', 'reference_et_rasters = "' + str(folder / "etr_{date}.tif") + '"\n# was "', 1
+        'weather = "', 'reference_et_rasters = "' + pattern + '"\n# was "', 1
     )
     edited.write_text(text.replace('"../', f'"{ROOT}/'))
     result = CliRunner().invoke(main, ["run", str(edited), "--out", str(out), "--quiet"])

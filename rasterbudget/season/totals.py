@@ -192,13 +192,34 @@ def season_inputs(out_dir: Path, scenes: list, rasters: list[Path], weather: lis
 
 
 def gridded_reference_et(recipe, season, days: list[dt.date], grid) -> list:
-    """How to read each day's reference-ET raster onto the season's grid (bilinear where it is
-    on another grid); every day's file must exist, have a CRS and overlap the grid."""
+    """How to read each day's reference ET onto the season's grid (bilinear where it is on
+    another grid): a file per day (``{date}`` in the path), or a band per day of one stack whose
+    band descriptions are the dates. Every day must be there."""
+    from dataclasses import replace
+
+    import rasterio
+
     from ..io.grid import check_input, input_source
 
+    pattern = season.reference_et_rasters
+    if "{date}" not in pattern:  # one multi-band stack
+        path = _resolve(recipe, pattern)
+        if not path.is_file():
+            raise RecipeError(f"season {season.id}: reference_et_rasters {path} does not exist.")
+        with rasterio.open(path) as src:
+            bands = {str(d): k + 1 for k, d in enumerate(src.descriptions) if d}
+        missing = [d for d in days if d.isoformat() not in bands]
+        if missing:
+            raise RecipeError(
+                f"season {season.id}: {path} has no band described {missing[0]} ({len(missing)} "
+                "days missing); each band's description must be its date, YYYY-MM-DD."
+            )
+        check_input(path, "daily reference ET", grid, band=1)
+        source = input_source(path, "reference_et", grid)
+        return [replace(source, band=bands[d.isoformat()]) for d in days]
     sources = []
     for day in days:
-        name = season.reference_et_rasters.replace("{date}", day.strftime("%Y%m%d"))
+        name = pattern.replace("{date}", day.strftime("%Y%m%d"))
         path = _resolve(recipe, name)
         if not path.is_file():
             raise RecipeError(
