@@ -364,7 +364,7 @@ def inspect(recipe: Path, chunk_size: int | None) -> None:
     Example:
       rasterbudget inspect workflows/demo.toml
     """
-    from .scene.inspection import inspect_recipe
+    from .workflow import inspect_recipe
 
     parsed, table = _recipe_and_classes(recipe)
     lines, problems = inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size)

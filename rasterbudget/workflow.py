@@ -307,3 +307,32 @@ def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[P
             results.append((folder, summary))
         write_compare_report(out, results)
     return results
+
+
+def inspect_recipe(
+    path: Path, table: ClassTable, recipe: Recipe, chunk_size: int
+) -> tuple[list[str], list[tuple[str, str]]]:
+    """Every scene's lines, and every scene's problem (scene id, message): a failing scene
+    keeps the lines found before its problem, and the scenes after it are inspected too."""
+    from .recipe import resolve_path
+    from .scene.inspection import inspect_scene
+
+    out: list[str] = []
+    problems: list[tuple[str, str]] = []
+    if recipe.zones is not None:
+        from .season.zones import read_zone_features
+
+        zone_path = resolve_path(recipe, recipe.zones.path)
+        try:
+            features, _ = read_zone_features(zone_path, recipe.zones.id_property)
+            out.append(f"zones {zone_path}: {len(features)} polygons")
+        except RasterBudgetError as err:
+            out.append(f"  PROBLEM: {err}")
+            problems.append(("zones", str(err)))
+    for scene in recipe.scene:
+        try:
+            inspect_scene(recipe, scene, table, chunk_size, out)
+        except RasterBudgetError as err:
+            out.append(f"  PROBLEM: {err}")
+            problems.append((scene.id, str(err)))
+    return out, problems

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import rasterio
@@ -182,31 +181,3 @@ def inspect_scene(
     if problems:
         raise AnchorError(f"scene {scene.id}: " + " Also: ".join(problems))
     return lines
-
-
-def inspect_recipe(
-    path: Path, table: ClassTable, recipe: Recipe, chunk_size: int
-) -> tuple[list[str], list[tuple[str, str]]]:
-    """Every scene's lines, and every scene's problem (scene id, message): a failing scene
-    keeps the lines found before its problem, and the scenes after it are inspected too."""
-    from ..errors import RasterBudgetError
-
-    out: list[str] = []
-    problems: list[tuple[str, str]] = []
-    if recipe.zones is not None:
-        from ..season.zones import read_zone_features
-
-        zone_path = resolve_path(recipe, recipe.zones.path)
-        try:
-            features, _ = read_zone_features(zone_path, recipe.zones.id_property)
-            out.append(f"zones {zone_path}: {len(features)} polygons")
-        except RasterBudgetError as err:
-            out.append(f"  PROBLEM: {err}")
-            problems.append(("zones", str(err)))
-    for scene in recipe.scene:
-        try:
-            inspect_scene(recipe, scene, table, chunk_size, out)
-        except RasterBudgetError as err:
-            out.append(f"  PROBLEM: {err}")
-            problems.append((scene.id, str(err)))
-    return out, problems
