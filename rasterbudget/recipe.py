@@ -213,6 +213,10 @@ class ReferenceEtSettings(_Strict):
     # overpass weather gives the reference ET (common practice for the tall reference), else
     # anchors.cold_evaporative_fraction; "off" = always anchors.cold_evaporative_fraction
     cold_anchor_fraction: Annotated[float, Field(gt=0.0, le=1.5)] | Literal["auto", "off"] = "auto"
+    # gridded reference ET of the recipe's surface, over the station's per pixel: the overpass
+    # hour's [mm h-1] (the reference-ET fraction's divisor) and the day's [mm d-1]
+    hourly_raster: str | None = None
+    daily_raster: str | None = None
 
 
 class ResidualSettings(_Strict):

@@ -178,6 +178,15 @@ _ROWS = (
         "at-sensor spectral radiance of the thermal band",
     ),
     InputRole(
+        "hourly_raster",
+        "reference_et",
+        False,
+        False,
+        "mm h-1",
+        "reference ET of the overpass hour",
+    ),
+    InputRole("daily_raster", "reference_et", False, False, "mm d-1", "reference ET of the day"),
+    InputRole(
         "air_temperature_c",
         "overpass",
         False,

@@ -174,6 +174,9 @@ def block_state(
         weather=gridded_weather_in_si(data),
         features=features,
     )
+    for name in ("hourly_raster", "daily_raster"):  # gridded reference ET, if given
+        if name in data:
+            state[f"reference_et_{name.split('_')[0]}"] = data[name]
     if prior_counts is not None:  # all, surface, vegetation counted before the pick
         state["candidate_counts"][:, :3] = prior_counts
     state["input_stats"] = stats
@@ -406,12 +409,18 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
         ensemble = method.ensemble_block(
             state, p.method_params, p.members, c, valid, lam, lam_daily, inverse_length
         )
-    if c.reference_et_hourly is not None and c.reference_et_hourly > 0:
-        fraction = et_hourly / c.reference_et_hourly  # ET at overpass / hourly reference ET
+    # the station's reference ET, or the pixel's own where the recipe gives it as rasters
+    hourly_reference = state.get("reference_et_hourly", c.reference_et_hourly)
+    daily_reference = state.get("reference_et_daily", c.reference_et_daily)
+    if hourly_reference is not None and np.any(np.asarray(hourly_reference) > 0):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            fraction = np.where(
+                np.asarray(hourly_reference) > 0, et_hourly / hourly_reference, np.nan
+            )  # ET at overpass / hourly reference ET
     else:
         fraction = np.full(ts.shape, np.nan)
     if c.daily_scaling == "reference_et_fraction":
-        et_daily = fraction * c.reference_et_daily
+        et_daily = fraction * daily_reference
 
     values = {
         **ensemble,

@@ -43,6 +43,11 @@ def input_paths(
             if role.name in gridded:
                 paths[role.name] = resolve_raster_path(recipe, gridded[role.name])
             continue
+        if role.section == "reference_et":
+            given = getattr(scene.reference_et, role.name)
+            if given is not None:
+                paths[role.name] = resolve_raster_path(recipe, given)
+            continue
         if role.name == "cloud_mask" and scene.inputs.cloud_mask is not None:
             paths[role.name] = resolve_raster_path(recipe, scene.inputs.cloud_mask.path)
             continue
