@@ -50,43 +50,46 @@ def _read(folder, name):
         return src.read(1).astype(np.float64)
 
 
-def test_rasters_of_the_station_values_give_the_station_run(tmp_path):
+@pytest.fixture(scope="module")
+def station(tmp_path_factory):
+    """The station run, its reference ET (hourly, daily) and the grid's shape."""
+    tmp_path = tmp_path_factory.mktemp("station")
     (tmp_path / "r_station").mkdir()
-    station = _run(tmp_path, "station")
-    reference = json.loads((station / "manifest.json").read_text())["reference_et"]
-    like = TINY / "elevation.tif"
-    with rasterio.open(like) as src:
+    folder = _run(tmp_path, "station")
+    reference = json.loads((folder / "manifest.json").read_text())["reference_et"]
+    with rasterio.open(LIKE) as src:
         shape = src.shape
-    hourly = np.full(shape, reference["hourly_mm"])
-    daily = np.full(shape, reference["daily_mm"])
+    return folder, reference["hourly_mm"], reference["daily_mm"], shape
+
+
+LIKE = TINY / "elevation.tif"
+
+
+def test_rasters_of_the_station_values_give_the_station_run(tmp_path, station):
+    folder, hourly_mm, daily_mm, shape = station
     (tmp_path / "r_gridded").mkdir()
     gridded = _run(
         tmp_path,
         "gridded",
         {
-            "hourly_raster": _raster(tmp_path / "hourly.tif", hourly, like),
-            "daily_raster": _raster(tmp_path / "daily.tif", daily, like),
+            "hourly_raster": _raster(tmp_path / "hourly.tif", np.full(shape, hourly_mm), LIKE),
+            "daily_raster": _raster(tmp_path / "daily.tif", np.full(shape, daily_mm), LIKE),
         },
     )
     for name in ("reference_et_fraction", "et_daily"):
         np.testing.assert_allclose(
-            _read(gridded, name), _read(station, name), rtol=1e-6, equal_nan=True
+            _read(gridded, name), _read(folder, name), rtol=1e-6, equal_nan=True
         )
 
 
-def test_each_pixel_divides_by_its_own_hourly_reference(tmp_path):
-    (tmp_path / "r_station").mkdir()
-    station = _run(tmp_path, "station")
-    reference = json.loads((station / "manifest.json").read_text())["reference_et"]
-    like = TINY / "elevation.tif"
-    with rasterio.open(like) as src:
-        shape = src.shape
-    hourly = np.full(shape, reference["hourly_mm"])
+def test_each_pixel_divides_by_its_own_hourly_reference(tmp_path, station):
+    folder, hourly_mm, _, shape = station
+    hourly = np.full(shape, hourly_mm)
     hourly[:, shape[1] // 2 :] *= 1.25  # a wetter air mass over the eastern half
     (tmp_path / "r_east").mkdir()
-    east = _run(tmp_path, "east", {"hourly_raster": _raster(tmp_path / "h.tif", hourly, like)})
+    east = _run(tmp_path, "east", {"hourly_raster": _raster(tmp_path / "h.tif", hourly, LIKE)})
     with np.errstate(invalid="ignore", divide="ignore"):
-        ratio = _read(east, "reference_et_fraction") / _read(station, "reference_et_fraction")
+        ratio = _read(east, "reference_et_fraction") / _read(folder, "reference_et_fraction")
     west, eastern = ratio[:, : shape[1] // 2], ratio[:, shape[1] // 2 :]
     assert np.nanmedian(west) == pytest.approx(1.0, rel=1e-6)
     assert np.nanmedian(eastern) == pytest.approx(1 / 1.25, rel=1e-6)
