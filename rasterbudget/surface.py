@@ -347,14 +347,20 @@ def surface_block(
 
 
 def perturbed_air(
-    c: SceneConstants, state: dict[str, np.ndarray], air_temperature_offset: float
+    c: SceneConstants,
+    state: dict[str, np.ndarray],
+    air_temperature_offset: float,
+    albedo_offset: float = 0.0,
+    surface_temperature_offset: float = 0.0,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Available energy [W m-2] and air density [kg m-3] with the air temperature shifted.
 
     Used by the uncertainty ensemble: only incoming longwave and air density depend on the
     overpass air temperature, so Rn' = Rn + eps0 (RL_in' - RL_in) (the surface absorbs eps0 of
     the change; eq. of :func:`radiation.net_radiation`), G' = (G/Rn) Rn', and rho' from the same
-    pressure at the new temperature (FAO-56 Annex 3 eq. 3-5).
+    pressure at the new temperature (FAO-56 Annex 3 eq. 3-5). An albedo offset takes
+    ``offset x Rs_in`` from Rn; a surface-temperature offset changes the emitted longwave,
+    eps0 sigma ((Ts + dTs)^4 - Ts^4).
     """
     ta = state["air_temperature"]
     ta_new = ta + air_temperature_offset
@@ -366,6 +372,17 @@ def perturbed_air(
         eps_old = eps_new = state["longwave_in"] / radiation.longwave_emitted(1.0, ta)
     delta_lw = radiation.longwave_emitted(eps_new, ta_new) - radiation.longwave_emitted(eps_old, ta)
     rn = state["net_radiation"] + state["surface_emissivity"] * delta_lw
+    if albedo_offset:
+        rn = rn - albedo_offset * state["shortwave_in"]
+    if surface_temperature_offset:
+        ts = state["surface_temperature"]
+        rn = (
+            rn
+            - radiation.longwave_emitted(
+                state["surface_emissivity"], ts + surface_temperature_offset
+            )
+            + radiation.longwave_emitted(state["surface_emissivity"], ts)
+        )
     available = (1.0 - state["ground_heat_ratio"]) * rn
     rho = turbulence.air_density(state["air_pressure"], ta_new)
     return available, rho

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 import rasterio
 from click.testing import CliRunner
 
@@ -24,6 +25,9 @@ def test_members_are_a_latin_hypercube_over_the_ranges():
                 m.cold_anchor_factor,
                 m.air_temperature_offset,
                 m.wind_factor,
+                m.surface_temperature_offset,
+                m.albedo_offset,
+                m.reference_et_factor,
             ]
             for m in members
         ]
@@ -35,6 +39,9 @@ def test_members_are_a_latin_hypercube_over_the_ranges():
             settings.cold_anchor_factor_range,
             settings.air_temperature_offset_range_c,
             settings.wind_factor_range,
+            settings.surface_temperature_offset_range_k,
+            settings.albedo_offset_range,
+            settings.reference_et_factor_range,
         ]
     )
     unit = (values - ranges[:, 0]) / (ranges[:, 1] - ranges[:, 0])
@@ -56,6 +63,9 @@ def test_an_ensemble_without_perturbation_reproduces_the_central_run(tmp_path):
         "cold_anchor_factor_range": [1.0, 1.0],
         "air_temperature_offset_range_c": [0.0, 0.0],
         "wind_factor_range": [1.0, 1.0],
+        "surface_temperature_offset_range_k": [0.0, 0.0],
+        "albedo_offset_range": [0.0, 0.0],
+        "reference_et_factor_range": [1.0, 1.0],
     }
     recipe = write_toml(data, tmp_path / "recipe.toml")
     out = tmp_path / "out"
@@ -94,3 +104,31 @@ def test_ensemble_spread_is_ordered_and_summarised(tmp_path):
     header = (folder / "tiles.csv").read_text().splitlines()[0]
     assert "et_daily_p10_mean" in header and "et_daily_p90_p50" in header
     assert "et_daily_p90_mean" in (folder / "classes.csv").read_text().splitlines()[0]
+
+
+def test_input_errors_move_available_energy_as_the_radiation_budget_says():
+    """A brighter surface (albedo + 0.02) loses 0.02 Rs_in of net radiation; a warmer one
+    (Ts + 1 K) emits eps sigma ((Ts + 1)^4 - Ts^4) more; G/Rn is kept."""
+    from scipy.constants import Stefan_Boltzmann
+
+    from rasterbudget.surface import perturbed_air
+    from tests.validation import _synthetic as syn
+
+    state = {
+        "air_temperature": np.array([300.0]),
+        "vapour_pressure": np.array([1.2]),
+        "longwave_in": np.array([380.0]),
+        "net_radiation": np.array([600.0]),
+        "surface_emissivity": np.array([0.97]),
+        "ground_heat_ratio": np.array([0.1]),
+        "air_pressure": np.array([85.0]),
+        "shortwave_in": np.array([900.0]),
+        "surface_temperature": np.array([310.0]),
+    }
+    c = syn.demo_constants()
+    base, _ = perturbed_air(c, state, 0.0)
+    brighter, _ = perturbed_air(c, state, 0.0, albedo_offset=0.02)
+    warmer, _ = perturbed_air(c, state, 0.0, surface_temperature_offset=1.0)
+    assert base[0] - brighter[0] == pytest.approx(0.9 * 0.02 * 900.0)
+    emitted = 0.97 * Stefan_Boltzmann * (311.0**4 - 310.0**4)  # scipy.constants' sigma
+    assert base[0] - warmer[0] == pytest.approx(0.9 * emitted, rel=1e-6)

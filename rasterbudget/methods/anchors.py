@@ -690,7 +690,7 @@ class AnchorMethod(SensibleHeatMethod):
         # global row-major index of each candidate pixel (ties between blocks go to the lowest)
         row, col = np.divmod(state["window_index"], c1 - c0)
         flat = (row + r0).astype(np.float64) * ctx.grid.width + (col + c0)
-        members = [perturbed_air(ctx.constants, state, dt) for dt in ctx.member_air_offsets]
+        members = [perturbed_air(ctx.constants, state, *o) for o in ctx.member_offsets]
         return (*anchor_histograms_block(state, flat, members), state["candidate_counts"])
 
     def combine(self, a, b):
@@ -774,13 +774,13 @@ class AnchorMethod(SensibleHeatMethod):
         }
         # ensemble members: the same pass-1 histograms, perturbed choices and weather
         members = []
-        dense = [dense_histogram(reduced[r], len(ctx.member_air_offsets)) for r in range(2)]
+        dense = [dense_histogram(reduced[r], len(ctx.member_offsets)) for r in range(2)]
         for m, member in enumerate(sample_members(scene.uncertainty)):
             anchors_m = {}
             for r, role in enumerate(ROLES):
                 if explicit[role]:
                     st = pixel_states[role]
-                    available, rho = perturbed_air(ctx.constants, st, member.air_temperature_offset)
+                    available, rho = perturbed_air(ctx.constants, st, *member.offsets)
                     anchors_m[role] = dataclasses.replace(
                         chosen[role],
                         available_energy=float(available[0, 0]),
@@ -796,7 +796,9 @@ class AnchorMethod(SensibleHeatMethod):
                         s.min_candidates,
                         ctx.grid.width,
                     )
-            fraction_m = cold_condition(anchors_m["cold"], member.cold_anchor_factor)
+            fraction_m = cold_condition(
+                anchors_m["cold"], member.cold_anchor_factor * member.reference_et_factor
+            )
             members.append((member, fit(anchors_m, fraction_m, member.wind_factor)))
         if members:
             facts["ensemble"] = [
@@ -843,7 +845,7 @@ class AnchorMethod(SensibleHeatMethod):
         ts = np.where(valid, state["surface_temperature"], np.nan)
         daily = np.empty((len(members), *ts.shape))
         for m, (member, calibration) in enumerate(members):
-            available, rho = perturbed_air(c, state, member.air_temperature_offset)
+            available, rho = perturbed_air(c, state, *member.offsets)
             available = np.where(valid, available, np.nan)
             # start from the central run's stability: members differ little, 2-4 iterations do
             h, _ = sensible_heat_block(

@@ -83,7 +83,7 @@ class CalibrationContext:
     grid: Any  # the target grid
     constants: Any  # surface.SceneConstants
     lookups: Any  # surface.ClassLookups
-    member_air_offsets: tuple[float, ...]  # ensemble members' air-temperature offsets [K]
+    member_offsets: tuple[tuple[float, float, float], ...]  # members' (air, albedo, Ts) offsets
     gridded_weather: frozenset[str]  # overpass keys given as rasters
     blending_wind_speed: float  # the station's wind at the blending height [m s-1]
     pixel_state: Callable[[int, int], dict]  # the surface state of one pixel (row, col)

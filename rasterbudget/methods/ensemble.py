@@ -2,7 +2,12 @@
 
 Each member perturbs what an analyst does not know well: the cold and hot anchor percentiles,
 the cold-anchor condition (its evaporative fraction, or its multiple of reference ET), the air
-temperature at overpass and the wind speed. Members are drawn by Latin hypercube sampling over
+temperature at overpass, the wind speed, and the inputs' errors: a surface-temperature offset, an
+albedo offset and a reference-ET factor. A surface-temperature offset shared by all pixels is
+largely absorbed by the anchor calibration (dT = a + b Ts is refitted on the offset anchors), so
+it enters through the emitted longwave only; a reference-ET factor enters through the cold
+anchor's multiple of reference ET (a fraction of reference ET times the same reference ET does
+not change). Members are drawn by Latin hypercube sampling over
 the recipe's ranges (scipy.stats.qmc), so a handful of members spans every range. All members
 share both passes over the rasters: the anchor histograms carry per-member sums, and pass 2
 evaluates every member on each block.
@@ -27,6 +32,11 @@ class UncertaintySettings(StrictSettings):
     cold_anchor_factor_range: tuple[float, float] = (0.95, 1.05)
     air_temperature_offset_range_c: tuple[float, float] = (-1.5, 1.5)
     wind_factor_range: tuple[float, float] = (0.8, 1.2)
+    # input errors (common practice): Landsat surface temperature about +-1.5 K, broadband
+    # albedo about +-0.02, a station's reference ET about +-10 %
+    surface_temperature_offset_range_k: tuple[float, float] = (-1.5, 1.5)
+    albedo_offset_range: tuple[float, float] = (-0.02, 0.02)
+    reference_et_factor_range: tuple[float, float] = (0.9, 1.1)
     seed: int = 20260612
 
     @model_validator(mode="after")
@@ -37,6 +47,9 @@ class UncertaintySettings(StrictSettings):
             "cold_anchor_factor_range",
             "air_temperature_offset_range_c",
             "wind_factor_range",
+            "surface_temperature_offset_range_k",
+            "albedo_offset_range",
+            "reference_et_factor_range",
         ):
             low, high = getattr(self, name)
             if low > high:
@@ -59,6 +72,14 @@ class Member:
     cold_anchor_factor: float  # multiplies the cold-anchor EF or reference-ET multiple [-]
     air_temperature_offset: float  # added to the overpass air temperature [K]
     wind_factor: float  # multiplies the overpass wind speed [-]
+    surface_temperature_offset: float = 0.0  # added to every pixel's Ts [K]
+    albedo_offset: float = 0.0  # added to every pixel's albedo [-]
+    reference_et_factor: float = 1.0  # multiplies the station's reference ET [-]
+
+    @property
+    def offsets(self) -> tuple[float, float, float]:
+        """(air temperature, albedo, surface temperature) offsets of the surface state."""
+        return self.air_temperature_offset, self.albedo_offset, self.surface_temperature_offset
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -75,6 +96,9 @@ def sample_members(settings: UncertaintySettings) -> list[Member]:
             settings.cold_anchor_factor_range,
             settings.air_temperature_offset_range_c,  # an offset in degC is an offset in K
             settings.wind_factor_range,
+            settings.surface_temperature_offset_range_k,
+            settings.albedo_offset_range,
+            settings.reference_et_factor_range,
         ]
     )
     from scipy.stats import qmc  # here: scipy.stats takes ~1.4 s to import

@@ -56,7 +56,7 @@ class BlockContext:
     blending_wind_speed: float = float("nan")  # station wind carried to the blending height
     mask_values: tuple[int, ...] = ()  # cloud/QA mask values to drop
     mask_bits: tuple[int, ...] = ()  # cloud/QA mask bits to drop
-    member_air_offsets: tuple[float, ...] = ()  # ensemble members' air-temperature offsets [K]
+    member_offsets: tuple[tuple[float, float, float], ...] = ()  # members' (air, albedo, Ts)
     derive_facts: tuple[tuple[str, float], ...] = ()  # scene facts of derived inputs
     mask_buffer: int = 0  # halo read for a derived cloud mask's buffer [pixels]
     halo: int = 0  # pixels read beyond each window for neighbourhood work (>= mask_buffer)

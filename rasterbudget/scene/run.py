@@ -284,9 +284,7 @@ def _block_context(
         if get_method(scene.sensible_heat).anchor_screens
         else files.mask_buffer,
         anchor_screens=get_method(scene.sensible_heat).anchor_screens,
-        member_air_offsets=tuple(
-            m.air_temperature_offset for m in sample_members(scene.uncertainty)
-        ),
+        member_offsets=tuple(m.offsets for m in sample_members(scene.uncertainty)),
     )
 
 
@@ -323,7 +321,7 @@ def _calibrate(
             grid=ctx.grid,
             constants=ctx.constants,
             lookups=ctx.lookups,
-            member_air_offsets=ctx.member_air_offsets,
+            member_offsets=ctx.member_offsets,
             gridded_weather=gridded,
             blending_wind_speed=ctx.blending_wind_speed,
             pixel_state=partial(_pixel_state, ctx),
