@@ -345,3 +345,36 @@ def test_a_requested_substitute_for_flagged_cells_is_its_own_column():
     assert "zones.flagged_substitute" in out["flagged_substitute"]
     (unknown,) = with_substitute([row], 0.85, None)  # no reference ET: said, not guessed
     assert np.isnan(unknown["flagged_substitute_volume_m3"])
+
+
+def test_a_zone_raster_gives_its_cells_as_zones(tmp_path):
+    """Integer zone ids on the output grid: each zone is exactly its cells (coverage 1), so the
+    zone means equal numpy's over the cells of each id."""
+    depth = np.random.default_rng(5).uniform(1.0, 6.0, (50, 60))
+    transform = from_origin(480000.0, 4430000.0, 30.0, 30.0)
+    raster = _raster(tmp_path / "et.tif", depth, "EPSG:32613", transform)
+    depth = depth.astype(np.float32).astype(np.float64)
+    ids = np.zeros((50, 60), dtype=np.int32)
+    ids[5:20, 5:30] = 3
+    ids[25:45, 10:55] = 7
+    ids[30:35, 40:50] = 3  # zone 3 in two parts
+    with rasterio.open(
+        tmp_path / "zones.tif",
+        "w",
+        driver="GTiff",
+        width=60,
+        height=50,
+        count=1,
+        dtype="int32",
+        crs="EPSG:32613",
+        transform=transform,
+        nodata=0,
+    ) as dst:
+        dst.write(ids, 1)
+    zone_ids, _, _, geometries = load_zones(tmp_path / "zones.tif", "zone_id", "EPSG:32613")
+    assert zone_ids == ["3", "7"]
+    rows = {r["zone_id"]: r for r in zone_rows(zone_ids, zone_totals(raster, geometries, 16), "et")}
+    for value in (3, 7):
+        cells = ids == value
+        assert rows[str(value)]["pixels"] == pytest.approx(cells.sum(), rel=1e-9)
+        assert rows[str(value)]["mean_depth_mm"] == pytest.approx(depth[cells].mean(), rel=1e-5)

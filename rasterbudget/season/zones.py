@@ -34,6 +34,8 @@ def read_zone_features(path: Path, id_property: str) -> tuple[list[dict], str]:
         raise RecipeError(f"zone file {path} does not exist; fix zones.path in the recipe.")
     if path.suffix.lower() in (".geojson", ".json"):
         features, source_crs = _geojson_features(path)
+    elif path.suffix.lower() in RASTER_SUFFIXES:
+        features, source_crs = _raster_features(path, id_property)
     else:
         features, source_crs = _ogr_features(path)
     ids = []
@@ -78,6 +80,41 @@ def _geojson_features(path: Path) -> tuple[list, str]:
         raise RecipeError(f"zone file {path} is not a GeoJSON FeatureCollection ({err}).") from None
     crs = collection.get("crs") if isinstance(collection.get("crs"), dict) else {}
     return features, (crs.get("properties") or {}).get("name", "EPSG:4326")
+
+
+#: File suffixes read as a zone raster (integer zone ids per cell; 0 and nodata: no zone).
+RASTER_SUFFIXES = (".tif", ".tiff", ".vrt", ".img")
+
+
+def _raster_features(path: Path, id_property: str) -> tuple[list, str]:
+    """The zones of an integer raster: each zone id's cells as one (Multi)Polygon of the cell
+    outlines (``rasterio.features.shapes``), in the raster's CRS; 0 and nodata are no zone."""
+    import rasterio
+    from rasterio import features
+
+    try:
+        with rasterio.open(path) as src:
+            if src.crs is None:
+                raise RecipeError(f"zone raster {path} has no CRS; assign one.")
+            ids = src.read(1)
+            valid = src.read_masks(1) > 0
+            transform, crs = src.transform, src.crs.to_string()
+    except rasterio.errors.RasterioIOError as err:
+        raise RecipeError(f"zone raster {path} cannot be read ({err}).") from None
+    if not np.issubdtype(ids.dtype, np.integer):
+        raise RecipeError(f"zone raster {path} holds {ids.dtype} values; zone ids are integers.")
+    polygons: dict[int, list] = {}
+    for geometry, value in features.shapes(ids, mask=valid & (ids != 0), transform=transform):
+        polygons.setdefault(int(value), []).append(geometry["coordinates"])
+    zones = [
+        {
+            "type": "Feature",
+            "properties": {id_property: str(value)},
+            "geometry": {"type": "MultiPolygon", "coordinates": rings},
+        }
+        for value, rings in sorted(polygons.items())
+    ]
+    return json.loads(json.dumps(zones)), crs
 
 
 def _ogr_features(path: Path) -> tuple[list, str]:
