@@ -378,3 +378,32 @@ def test_a_zone_raster_gives_its_cells_as_zones(tmp_path):
         cells = ids == value
         assert rows[str(value)]["pixels"] == pytest.approx(cells.sum(), rel=1e-9)
         assert rows[str(value)]["mean_depth_mm"] == pytest.approx(depth[cells].mean(), rel=1e-5)
+
+
+def test_gdal_places_the_written_zones_geojson_right(tmp_path):
+    """GDAL (through pyogrio) reads zones.geojson as WGS84 longitude/latitude, and its polygon
+    maps back onto the zone drawn on the UTM grid."""
+    import shapely
+    from pyogrio import raw
+    from rasterio.warp import transform_geom
+
+    from rasterbudget.season.zones import write_zone_tables
+
+    ring = [
+        (480300.0, 4429700.0),
+        (481200.0, 4429700.0),
+        (481200.0, 4428800.0),
+        (480300.0, 4428800.0),
+        (480300.0, 4429700.0),
+    ]
+    utm = {"type": "Polygon", "coordinates": [ring]}
+    lonlat = transform_geom("EPSG:32613", "EPSG:4326", utm)
+    row = {"zone_id": "f", "mean_depth_mm": 3.0}
+    write_zone_tables(tmp_path, [row], [{"zone_id": "f"}], [lonlat])
+    meta, _, geometries, _ = raw.read(tmp_path / "zones.geojson")
+    assert meta["crs"] == "EPSG:4326"
+    to_utm = Transformer.from_crs("EPSG:4326", "EPSG:32613", always_xy=True)
+    back = shapely.transform(
+        shapely.from_wkb(geometries[0]), lambda xy: np.column_stack(to_utm.transform(*xy.T))
+    )
+    assert back.equals_exact(shapely.Polygon(ring), tolerance=1e-3)  # millimetres
