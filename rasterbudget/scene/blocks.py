@@ -120,15 +120,7 @@ def block_state(
         data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
             data["land_cover"], dict(ctx.remap)
         )
-    finite_cover = np.isfinite(data["land_cover"])
-    stats["land_cover_known"] = np.array(
-        [
-            np.count_nonzero(finite_cover),
-            np.count_nonzero(
-                ctx.lookups.known[land_cover_codes(data["land_cover"])] & finite_cover
-            ),
-        ]
-    )
+    stats["land_cover_known"] = known_cover_counts(data["land_cover"], ctx.lookups.known)
     lon, lat, sun = pixel_geometry(ctx.grid, rows, cols, ctx.constants)
     window_index = prior_counts = None
     if candidates_only:
@@ -218,6 +210,15 @@ ELEVATION_RANGE = (-450.0, 8900.0)
 
 def _is_reflectance(role: str) -> bool:
     return role in INPUTS and INPUTS[role].section == "product" and INPUTS[role].units == "1"
+
+
+def known_cover_counts(land_cover: np.ndarray, known: np.ndarray) -> np.ndarray:
+    """Pixels with a land-cover value, and those whose code the class table knows
+    (``known``: its 256-entry lookup), for the check that a map holds some known code."""
+    finite = np.isfinite(land_cover)
+    return np.array(
+        [np.count_nonzero(finite), np.count_nonzero(known[land_cover_codes(land_cover)] & finite)]
+    )
 
 
 def remap_codes(codes: np.ndarray, mapping: dict[int, int]) -> tuple[np.ndarray, dict]:

@@ -30,7 +30,14 @@ from ..io.grid import (
 from ..methods import get_method
 from ..recipe import Recipe, Scene, resolve_path
 from ..surface import ClassLookups, land_cover_codes, surface_block
-from .blocks import BlockContext, check_input_values, input_stats, mask_pixels, remap_codes
+from .blocks import (
+    BlockContext,
+    check_input_values,
+    input_stats,
+    known_cover_counts,
+    mask_pixels,
+    remap_codes,
+)
 from .constants import scene_constants, with_weather_at_centre
 from .geometry import pixel_lonlat
 from .inputs import input_paths, mask_rule
@@ -114,9 +121,7 @@ def inspect_scene(
                 data["land_cover"], mapping
             )
         if "land_cover" in data:  # the run's own check: some code of the class table
-            finite = np.isfinite(data["land_cover"])
-            known = table.known()[land_cover_codes(data["land_cover"])] & finite
-            stats["land_cover_known"] = np.array([finite.sum(), known.sum()])
+            stats["land_cover_known"] = known_cover_counts(data["land_cover"], table.known())
         check_input_values(stats, tuple(sources))
     # albedo, NDVI, surface temperature, land cover and clouds from a product's bands
     data = derive_inputs(data, None if product is None else product.derive_facts)

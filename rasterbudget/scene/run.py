@@ -251,6 +251,7 @@ def _block_context(
 ) -> BlockContext:
     """Everything a block task needs, small and picklable."""
     grid, anchors, overpass = files.grid, scene.anchors, scene.overpass
+    screened = get_method(scene.sensible_heat).anchor_screens  # the method's neighbourhood screens
     return BlockContext(
         grid=grid,
         constants=constants,
@@ -280,10 +281,8 @@ def _block_context(
         derive_facts=tuple(sorted((files.derive_facts or {}).items())),
         mask_buffer=files.mask_buffer,
         # the anchor method screens candidates by their neighbourhood
-        halo=constants.screens.halo(files.mask_buffer)
-        if get_method(scene.sensible_heat).anchor_screens
-        else files.mask_buffer,
-        anchor_screens=get_method(scene.sensible_heat).anchor_screens,
+        halo=constants.screens.halo(files.mask_buffer) if screened else files.mask_buffer,
+        anchor_screens=screened,
         member_offsets=tuple(m.offsets for m in sample_members(scene.uncertainty)),
     )
 

@@ -56,15 +56,19 @@ def zone_fraction_means(recipe, settings, scene_ids: list[str]) -> dict[str, dic
     from .zones import load_zones, zone_rows, zone_totals
 
     out: dict[str, dict[str, float]] = {}
+    prepared: dict[str, tuple] = {}  # the zones on each grid CRS: read and transformed once
     for sid in scene_ids:
         raster = settings.out_dir / sid / "reference_et_fraction.tif"
         if not raster.is_file():
             continue
         with rasterio.open(raster) as src:
             crs = src.crs
-        ids, _, _, geometries = load_zones(
-            resolve_path(recipe, recipe.zones.path), recipe.zones.id_property, crs
-        )
+        if crs.to_wkt() not in prepared:
+            ids, _, _, geometries = load_zones(
+                resolve_path(recipe, recipe.zones.path), recipe.zones.id_property, crs
+            )
+            prepared[crs.to_wkt()] = (ids, geometries)
+        ids, geometries = prepared[crs.to_wkt()]
         totals = zone_totals(raster, geometries, effective_chunk_size(settings.chunk_size))
         rows = zone_rows(ids, totals, "reference_et_fraction")
         # mean_depth_mm is the weighted mean of the raster's values (here a fraction, not mm)

@@ -428,15 +428,21 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
 
     spec = recipe.zones
     written = []
+    prepared: dict[str, tuple] = {}  # the zones on each grid CRS: read and transformed once
     for folder, variable in targets:
         raster = settings.out_dir / folder / f"{variable}.tif"
         if not raster.is_file():
             continue
         with rasterio.open(raster) as src:
             crs = src.crs
-        ids, props, _, geometries = load_zones(
-            resolve_path(recipe, spec.path), spec.id_property, crs
-        )
+        if crs.to_wkt() not in prepared:
+            ids, props, _, geometries = load_zones(
+                resolve_path(recipe, spec.path), spec.id_property, crs
+            )
+            areas = [polygon_area(g, crs.to_wkt()) for g in geometries]
+            lonlat = [transform_geom(crs, "EPSG:4326", g) for g in geometries]
+            prepared[crs.to_wkt()] = (ids, props, geometries, areas, lonlat)
+        ids, props, geometries, areas, lonlat = prepared[crs.to_wkt()]
         qa = settings.out_dir / folder / "qa_flags.tif"
         totals = zone_totals(
             raster,
@@ -444,8 +450,6 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
             effective_chunk_size(settings.chunk_size),
             qa if qa.is_file() else None,
         )
-        areas = [polygon_area(g, crs.to_wkt()) for g in geometries]
-        lonlat = [transform_geom(crs, "EPSG:4326", g) for g in geometries]
         rows = zone_rows(ids, totals, variable, areas)
         if spec.flagged_substitute is not None:
             rows = with_substitute(
