@@ -183,14 +183,28 @@ def _season_section(folder: Path) -> str:
         f"{manifest['mean_et_season_mm']:.0f} mm.</p>",
         _img(_png(fig), "season ET"),
     ]
+    spread = manifest.get("uncertainty") or {}
+    if spread.get("members"):
+        p = spread["mean_et_season_mm"]
+        parts.append(
+            f"<p>Uncertainty: over {spread['members']} ensemble members the mean season ET is "
+            f"{p['p10']:.0f} to {p['p90']:.0f} mm (p10 to p90; median {p['p50']:.0f} mm), "
+            "each percentile taken over the members' own totals. Assumed: "
+            f"{html.escape(spread['assumption'])}.</p>"
+        )
     if (folder / "zones.csv").is_file():
         zones = list(csv.DictReader((folder / "zones.csv").open()))
-        parts.append("<h3>Zones</h3>" + _table(zones, [*ZONE_COLUMNS, "volume_acre_feet"]))
+        columns = [*ZONE_COLUMNS, "volume_acre_feet"]
+        if zones and "mean_depth_mm_p10" in zones[0]:
+            columns += [f"{c}_{q}" for c in ("mean_depth_mm", "volume_m3") for q in ("p10", "p90")]
+        parts.append("<h3>Zones</h3>" + _table(zones, columns))
     return "\n".join(parts)
 
 
-def _zone_series_section(out_dir: Path) -> str:
-    """Every zone's ET at the scene dates (one curve per zone), from ``zones_series.csv``."""
+def _zone_series_section(out_dir: Path, season_ids: list[str] = ()) -> str:
+    """Every zone's ET at the scene dates (one curve per zone, its members' p10-p90 as a band
+    where the scenes have an ensemble), from ``zones_series.csv``; and every zone's season
+    totals season by season, with the members' p10-p90 as error bars."""
     import datetime as dt
 
     import matplotlib
@@ -202,19 +216,83 @@ def _zone_series_section(out_dir: Path) -> str:
     if not path.is_file():
         return ""
     rows = list(csv.DictReader(path.open()))
+    banded = bool(rows) and "et_daily_mm_p10" in rows[0]
     fig, ax = plt.subplots(figsize=(8, 4))
     for zone in sorted({r["zone_id"] for r in rows}):
         mine = sorted((r for r in rows if r["zone_id"] == zone), key=lambda r: r["date"])
         dates = [dt.date.fromisoformat(r["date"]) for r in mine]
-        ax.plot(dates, [float(r["et_daily_mm"]) for r in mine], marker="o", label=zone)
+        (line,) = ax.plot(dates, [float(r["et_daily_mm"]) for r in mine], marker="o", label=zone)
+        if banded:
+            low = [float(r["et_daily_mm_p10"] or "nan") for r in mine]
+            high = [float(r["et_daily_mm_p90"] or "nan") for r in mine]
+            ax.fill_between(dates, low, high, color=line.get_color(), alpha=0.18, lw=0)
     ax.set_ylabel("daily ET, zone mean [mm/d]")
     ax.legend(fontsize=7, ncol=2)
     fig.autofmt_xdate()
     fig.tight_layout()
-    return (
+    band = " Shaded: the ensemble members' p10 to p90." if banded else ""
+    parts = [
         "<h2>Zone time series</h2><p>Each zone's coverage-weighted mean daily ET at the scene "
         "dates (<code>zones_series.csv</code>; monthly and water-year totals in "
-        "<code>zones_monthly.csv</code>).</p>" + _img(_png(fig), "zone time series")
+        f"<code>zones_monthly.csv</code>).{band}</p>" + _img(_png(fig), "zone time series")
+    ]
+    totals = _season_zone_totals(out_dir, season_ids)
+    if totals:
+        parts.append(totals)
+    return "\n".join(parts)
+
+
+def _season_zone_totals(out_dir: Path, season_ids: list[str]) -> str:
+    """Each zone's season ET, season after season, with the members' p10-p90 where present."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    tables = {}
+    for sid in season_ids:
+        path = out_dir / sid / "zones.csv"
+        if path.is_file():
+            tables[sid] = {r["zone_id"]: r for r in csv.DictReader(path.open())}
+    if not tables:
+        return ""
+    zones = sorted({z for table in tables.values() for z in table})
+    seasons = list(tables)
+    fig, ax = plt.subplots(figsize=(8, 4))
+    width = 0.8 / max(len(zones), 1)
+    banded = False
+    for k, zone in enumerate(zones):
+        x = np.arange(len(seasons)) + (k - (len(zones) - 1) / 2) * width
+        got = [tables[s].get(zone, {}) for s in seasons]
+        mid = np.array([float(r.get("mean_depth_mm") or "nan") for r in got])
+        low = np.array([float(r.get("mean_depth_mm_p10") or "nan") for r in got])
+        high = np.array([float(r.get("mean_depth_mm_p90") or "nan") for r in got])
+        ax.bar(x, mid, width, label=zone)
+        if np.isfinite(low).any():
+            banded = True
+            ax.errorbar(
+                x,
+                mid,
+                yerr=[np.clip(mid - low, 0, None), np.clip(high - mid, 0, None)],
+                fmt="none",
+                ecolor="#333",
+                elinewidth=1,
+                capsize=2,
+            )
+    ax.set_xticks(np.arange(len(seasons)), seasons, rotation=20)
+    ax.set_ylabel("season ET, zone mean [mm]")
+    ax.legend(fontsize=7, ncol=3)
+    fig.tight_layout()
+    note = (
+        " Whiskers: the members' p10 to p90 of each zone's own season total; the bar (the "
+        "central run) need not lie between them."
+        if banded
+        else ""
+    )
+    return (
+        "<h3>Season totals per zone</h3><p>Coverage-weighted mean season ET of every zone "
+        f"(<code>&lt;season&gt;/zones.csv</code>).{note}</p>"
+        + _img(_png(fig), "zone season totals")
     )
 
 
@@ -256,7 +334,7 @@ def write_report(out_dir: Path, scene_ids: list[str], season_ids: list[str]) -> 
         for s in season_ids
         if (out_dir / s / "manifest.json").is_file()
     ]
-    sections.append(_zone_series_section(out_dir))
+    sections.append(_zone_series_section(out_dir, season_ids))
     page = (
         "<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
         f"<title>rasterbudget report</title><style>{STYLE}</style></head><body>"
@@ -344,6 +422,14 @@ def _comparison_section(folder: Path, summary: dict) -> str:
             "McKee, Doesken &amp; Kleist (1993): |z| &ge; 2 extreme, 1.5-2 severe, 1-1.5 "
             "moderate, below 1 near normal; below normal ET reads as dry.</p>"
             + _table(summary["categories"], ["category", "pixels", "share_of_valid_area"])
+        )
+    spread = summary.get("uncertainty") or {}
+    if spread.get("members"):
+        p = spread["mean_difference"]
+        parts.append(
+            f"<p>Uncertainty: over {spread['members']} ensemble members (member k minus member "
+            f"k) the mean difference is {p['p10']:.4g} to {p['p90']:.4g} "
+            f"{html.escape(summary.get('units', ''))} (p10 to p90; median {p['p50']:.4g}).</p>"
         )
     if summary.get("zones"):
         columns = [c for c in summary["zones"][0] if c not in ("pixels",)]

@@ -167,7 +167,8 @@ def _zone_series(recipe, settings, outcomes, seasons: list[dict]) -> list[Path]:
 
     done = [o.scene_id for o in outcomes if o.status != "failed"]
     scenes = [s for s in recipe.scene if s.id in done]
-    rows = scene_rows(settings.out_dir, scenes, zone_fraction_means(recipe, settings, done))
+    fractions = zone_fraction_means(recipe, settings, done)
+    rows = scene_rows(settings.out_dir, scenes, fractions)
     monthly = []
     for manifest in seasons:
         etr = manifest.get("reference_et_daily_mm")
@@ -178,7 +179,7 @@ def _zone_series(recipe, settings, outcomes, seasons: list[dict]) -> list[Path]:
             dt.date.fromisoformat(str(manifest["end"])),
         )
         monthly += monthly_rows(
-            manifest["season_id"], rows, manifest["scenes"], days, np.asarray(etr)
+            manifest["season_id"], rows, manifest["scenes"], days, np.asarray(etr), fractions
         )
     return write_series(settings.out_dir, rows, monthly) if rows else []
 

@@ -12,6 +12,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 
 __all__ = [
+    "MEMBER_FRACTIONS",
     "QA_OUTPUT",
     "VARIABLES",
     "Variable",
@@ -128,6 +129,13 @@ _ROWS = (
         "ensemble",
         histogram=(0.0, 20.0, 0.01),
     ),
+    # one band per ensemble member (band descriptions member_01, ...; the manifest's ensemble)
+    Variable(
+        "reference_et_fraction_members",  # MEMBER_FRACTIONS
+        "1",
+        "each ensemble member's ET at overpass / its hourly reference ET",
+        "members",
+    ),
     Variable(
         "qa_flags", "bitmask", "QA flags, bits in the README", "qa", dtype="uint16", nodata=None
     ),
@@ -145,13 +153,49 @@ _ROWS = (
     Variable(
         "season_qa",
         "bitmask",
-        "1: filled from neighbouring scenes, 2: no valid scene",
+        "1: filled from neighbouring scenes, 2: no valid scene, 4: a scene flagged the "
+        "residual unreliable (water, snow, built-up)",
         "season",
         dtype="uint8",
         nodata=255,
     ),
+    # season totals of the ensemble members (percentiles per pixel over the members' totals)
+    Variable(
+        "et_season_p10",
+        "mm",
+        "ET {start} to {end}, 10th percentile of the members",
+        "season_members",
+    ),
+    Variable("et_season_p50", "mm", "ET {start} to {end}, median of the members", "season_members"),
+    Variable(
+        "et_season_p90",
+        "mm",
+        "ET {start} to {end}, 90th percentile of the members",
+        "season_members",
+    ),
+    Variable(
+        "et_season_members",  # one band per member, as the scenes' member fractions
+        "mm",
+        "ET {start} to {end} of each ensemble member",
+        "season_members",
+    ),
     # comparisons ({units}: those of the compared rasters)
     Variable("difference", "{units}", "current - previous", "comparison"),
+    Variable(
+        "difference_p10",
+        "{units}",
+        "current - previous, 10th percentile of the members",
+        "comparison",
+    ),
+    Variable(
+        "difference_p50", "{units}", "current - previous, median of the members", "comparison"
+    ),
+    Variable(
+        "difference_p90",
+        "{units}",
+        "current - previous, 90th percentile of the members",
+        "comparison",
+    ),
     Variable("percent_change", "%", "100 (current - previous) / previous", "comparison"),
     Variable("standardized_anomaly", "1", "(current - baseline mean) / baseline std", "comparison"),
     Variable(
@@ -168,6 +212,7 @@ VARIABLES: dict[str, Variable] = {v.name: v for v in _ROWS}
 """Every output variable by name, in the order the package writes and summarises them."""
 
 QA_OUTPUT = "qa_flags"
+MEMBER_FRACTIONS = "reference_et_fraction_members"
 
 
 def _of_group(*groups: str) -> dict[str, Variable]:

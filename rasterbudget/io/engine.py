@@ -76,9 +76,10 @@ class BlockLayout:
 
 @dataclass(frozen=True)
 class Target:
-    """Where one layer of each block goes: ``sink[rows, cols] = block[layer].astype(dtype)``."""
+    """Where one layer of each block goes: ``sink[rows, cols] = block[layer].astype(dtype)``;
+    a slice of layers goes to a multi-band sink as ``sink[rows, cols] = block[layer]``."""
 
-    layer: int
+    layer: int | slice
     dtype: str
     sink: Any  # an AtomicRaster, a Zarr array, anything with __setitem__ by window
 

@@ -91,7 +91,8 @@ def block_size_for(chunk_size: int) -> int:
 
 
 class AtomicRaster:
-    """A single-band GeoTIFF written window by window under a temporary name.
+    """A GeoTIFF written window by window under a temporary name: one band, or with ``bands``
+    one band per name (a window then takes a (bands, rows, cols) array).
 
     ``__setitem__`` takes the (row-slice, col-slice) keys that ``dask.array.store`` sends; each file
     has its own lock (a lock shared by all files serialised the writes: DESIGN.md). ``finish``
@@ -110,6 +111,7 @@ class AtomicRaster:
         block_size: int,
         tags: dict | None = None,
         fill: dict[str, str] | None = None,
+        bands: tuple[str, ...] | None = None,
         **options,
     ) -> AtomicRaster:
         """The writer of a catalogue variable (``catalog.variables``): ``OUT/<name>.tif`` with its
@@ -126,6 +128,7 @@ class AtomicRaster:
             v.units.format(**fill),
             v.description.format(**fill),
             tags,
+            bands=bands,
             **options,
         )
 
@@ -142,6 +145,7 @@ class AtomicRaster:
         tags: dict | None = None,
         cog: bool = False,
         compression: str = "zstd",
+        bands: tuple[str, ...] | None = None,
     ) -> None:
         self.path = Path(path)
         self.partial = self.path.with_name(self.path.name + PARTIAL_SUFFIX)
@@ -153,7 +157,7 @@ class AtomicRaster:
         self._ready: Path | None = None
         self.committed = False
         self.lock = threading.Lock()
-        self._shape = (grid.height, grid.width)
+        self._shape = (len(bands), grid.height, grid.width) if bands else (grid.height, grid.width)
         self.dtype = dtype
         self.nodata = nodata
         self.units = units
@@ -161,14 +165,19 @@ class AtomicRaster:
         profile = {
             "width": grid.width,
             "height": grid.height,
-            "count": 1,
+            "count": len(bands) if bands else 1,
             "dtype": dtype,
             "crs": grid.crs.to_wkt(),
             "transform": grid.transform,
             "nodata": nodata,
             **creation_options(block_size, dtype, compression),
         }
-        band = {"name": name, "units": units, "description": description, "tags": tags or {}}
+        band = {
+            "names": tuple(bands) if bands else (name,),
+            "units": units,
+            "description": description,
+            "tags": tags or {},
+        }
         from .cluster import distributed_client
 
         client = distributed_client()
@@ -186,7 +195,7 @@ class AtomicRaster:
             self.dataset = _create(self.partial, profile, band)
 
     @property
-    def shape(self) -> tuple[int, int]:
+    def shape(self) -> tuple[int, ...]:
         return self._shape
 
     def __getstate__(self) -> dict:
@@ -199,13 +208,15 @@ class AtomicRaster:
         self.__dict__.update(state)
         self.lock = threading.Lock()
 
-    def __setitem__(self, key: tuple[slice, slice], value: np.ndarray) -> None:
-        rows, cols = key
+    def __setitem__(self, key: tuple[slice, ...], value: np.ndarray) -> None:
+        rows, cols = key[-2:]  # (rows, cols), or (bands, rows, cols) from dask's store
         window = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
         data = np.asarray(value, dtype=self.dtype)
         if not self.shared:
             with self.lock:
-                self.dataset.write(data, 1, window=window)
+                if self.dataset.closed:  # aborted while another block was still on its way
+                    raise RuntimeError(f"{self.path.name} is closed: the run was aborted")
+                self.dataset.write(data, None if data.ndim == 3 else 1, window=window)
             return
         self._actor.write(rows.start, rows.stop, cols.start, cols.stop, data).result()
 
@@ -231,8 +242,11 @@ class AtomicRaster:
         return self.path
 
     def abort(self) -> None:
-        if self.dataset is not None and not self.dataset.closed:
-            self.dataset.close()
+        # under the lock: after a failed block dask's other threads may still be writing, and
+        # GDAL crashes on a handle closed mid-write
+        with self.lock:
+            if self.dataset is not None and not self.dataset.closed:
+                self.dataset.close()
         if self._actor is not None:
             try:
                 self._actor.close().result()
@@ -243,10 +257,11 @@ class AtomicRaster:
 
 
 def _create(path: Path | str, profile: dict, band: dict):
-    """Create a single-band GeoTIFF open for writing, with its band name, units and tags."""
+    """Create a GeoTIFF open for writing, with its band names, units and tags."""
     dataset = rasterio.open(path, "w", **profile)
-    dataset.set_band_description(1, band["name"])
-    dataset.update_tags(1, units=band["units"], long_name=band["description"])
+    for index, name in enumerate(band["names"], start=1):
+        dataset.set_band_description(index, name)
+        dataset.update_tags(index, units=band["units"], long_name=band["description"])
     if band["tags"]:
         dataset.update_tags(**{k: str(v) for k, v in band["tags"].items()})
     return dataset
@@ -262,7 +277,8 @@ class WindowWriter:
 
     def write(self, r0: int, r1: int, c0: int, c1: int, data: np.ndarray) -> None:
         with self.lock:
-            self.dataset.write(data, 1, window=Window(c0, r0, c1 - c0, r1 - r0))
+            window = Window(c0, r0, c1 - c0, r1 - r0)
+            self.dataset.write(data, None if data.ndim == 3 else 1, window=window)
 
     def close(self) -> None:
         with self.lock:

@@ -36,7 +36,7 @@ from .base import (
     StrictSettings,
     register,
 )
-from .ensemble import ensemble_percentiles, sample_members
+from .ensemble import sample_members
 from .histograms import RangeHistogram, merge_optional, range_histogram
 
 
@@ -839,11 +839,13 @@ class AnchorMethod(SensibleHeatMethod):
                 qa |= np.where(inside, np.uint16(flag), np.uint16(0))
         return qa
 
-    def ensemble_block(self, state, params, members, constants, valid, lam, lam_daily, length):
-        """Daily ET of every ensemble member on one block, reduced to per-pixel percentiles."""
+    def ensemble_block(self, state, params, members, constants, valid, lam, length):
+        """Every ensemble member's ET at overpass [mm h-1] and evaporative fraction on one
+        block, each an array (members, rows, cols)."""
         c = constants
         ts = np.where(valid, state["surface_temperature"], np.nan)
-        daily = np.empty((len(members), *ts.shape))
+        et_hourly = np.empty((len(members), *ts.shape))
+        fraction = np.empty((len(members), *ts.shape))
         for m, (member, calibration) in enumerate(members):
             available, rho = perturbed_air(c, state, *member.offsets)
             available = np.where(valid, available, np.nan)
@@ -860,16 +862,9 @@ class AnchorMethod(SensibleHeatMethod):
                 blending_wind_speed=state["blending_wind_speed"] * member.wind_factor,
             )
             le = partition.clip_latent_heat(available - h, c.max_evaporative_fraction * available)
-            if c.daily_scaling == "reference_et_fraction":
-                et_hourly = partition.et_depth(le, lam, SECONDS_PER_HOUR)
-                daily[m] = et_hourly / c.reference_et_hourly * c.reference_et_daily
-            else:
-                ef = partition.evaporative_fraction(le, available)
-                daily[m] = partition.et_daily_from_evaporative_fraction(
-                    ef, np.maximum(state["net_radiation_daily"], 0.0), lam_daily
-                )
-        low, high = ensemble_percentiles(daily)
-        return {"et_daily_p10": low, "et_daily_p90": high}
+            et_hourly[m] = partition.et_depth(le, lam, SECONDS_PER_HOUR)
+            fraction[m] = partition.evaporative_fraction(le, available)
+        return {"et_hourly": et_hourly, "evaporative_fraction": fraction}
 
     def summary(self, facts):
         a = facts["anchors"]

@@ -168,10 +168,10 @@ class SensibleHeatMethod:
         constants: Any,
         valid,
         lam,
-        lam_daily,
         length,
     ) -> dict[str, np.ndarray]:
-        """Per-pixel percentiles of the members' daily ET (methods with ``ensemble``)."""
+        """Every member's ``et_hourly`` [mm h-1] and ``evaporative_fraction``, each an array
+        (members, rows, cols) (methods with ``ensemble``)."""
         raise NotImplementedError
 
     def extra_outputs(self, reduced: Any, params: Any, out_dir: Path, title: str) -> dict:

@@ -109,6 +109,28 @@ def sample_members(settings: UncertaintySettings) -> list[Member]:
     return [Member(*map(float, row)) for row in values]
 
 
+#: Percentiles of totals over the members (seasons, zones, comparisons): name -> percentile.
+TOTAL_PERCENTILES = {"p10": 10.0, "p50": 50.0, "p90": 90.0}
+
+
+def member_percentiles(values, axis: int = 0) -> dict:
+    """:data:`TOTAL_PERCENTILES` of ``values`` over the members' ``axis``, by name; each NaN
+    where any member is NaN."""
+    values = np.asarray(values, dtype=np.float64)
+    found = np.percentile(values, list(TOTAL_PERCENTILES.values()), axis=axis)
+    return dict(zip(TOTAL_PERCENTILES, found, strict=True))
+
+
+def member_spread(means, quantity: str) -> dict:
+    """The members' means of ``quantity`` and their p10, p50 and p90, for a manifest."""
+    means = np.array([float(m) for m in means])
+    return {
+        "members": len(means),
+        quantity: {k: float(v) for k, v in member_percentiles(means).items()},
+        f"member_{quantity}": means.tolist(),
+    }
+
+
 def ensemble_percentiles(members: np.ndarray) -> np.ndarray:
     """Per-pixel percentiles over the leading member axis (NaN where any member is NaN)."""
     return np.percentile(members, ENSEMBLE_PERCENTILES, axis=0)

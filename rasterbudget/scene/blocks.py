@@ -22,6 +22,7 @@ from ..io.grid import (
     read_window,
 )
 from ..methods import get_method
+from ..methods.ensemble import ensemble_percentiles
 from ..physics import partition, turbulence
 from ..physics.constants import SECONDS_PER_HOUR
 from ..physics.solar import (
@@ -362,6 +363,7 @@ class Pass2Parameters:
     variables: tuple[str, ...]
     method_params: Any = None
     members: tuple = ()  # the method's ensemble members' parameters
+    member_fractions: bool = False  # add each member's reference-ET fraction as a layer
 
 
 def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
@@ -405,23 +407,30 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
     if method_bits is not None:
         qa |= method_bits
     c = ctx.constants
-    ensemble = {}
-    if p.members:
-        ensemble = method.ensemble_block(
-            state, p.method_params, p.members, c, valid, lam, lam_daily, inverse_length
-        )
     # the station's reference ET, or the pixel's own where the recipe gives it as rasters
     hourly_reference = state.get("reference_et_hourly", c.reference_et_hourly)
     daily_reference = state.get("reference_et_daily", c.reference_et_daily)
-    if hourly_reference is not None and np.any(np.asarray(hourly_reference) > 0):
-        with np.errstate(divide="ignore", invalid="ignore"):
-            fraction = np.where(
-                np.asarray(hourly_reference) > 0, et_hourly / hourly_reference, np.nan
-            )  # ET at overpass / hourly reference ET
-    else:
-        fraction = np.full(ts.shape, np.nan)
+    fraction = reference_fraction(et_hourly, hourly_reference)
     if c.daily_scaling == "reference_et_fraction":
         et_daily = fraction * daily_reference
+    ensemble, member_fractions = {}, None
+    if p.members:
+        runs = method.ensemble_block(
+            state, p.method_params, p.members, c, valid, lam, inverse_length
+        )
+        # each member's own view of reference ET: the station's (or pixel's) times its factor
+        factor = np.array([m.reference_et_factor for m, _ in p.members])[:, None, None]
+        member_fractions = reference_fraction(runs["et_hourly"], hourly_reference, factor)
+        if c.daily_scaling == "reference_et_fraction":
+            member_daily = member_fractions * (factor * daily_reference)
+        else:
+            member_daily = partition.et_daily_from_evaporative_fraction(
+                runs["evaporative_fraction"],
+                np.maximum(state["net_radiation_daily"], 0.0),
+                lam_daily,
+            )
+        low, high = ensemble_percentiles(member_daily)
+        ensemble = {"et_daily_p10": low, "et_daily_p90": high}
 
     values = {
         **ensemble,
@@ -444,7 +453,19 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
         "land_cover_code": state["codes"],
     }
     out = np.stack([np.asarray(values[v], dtype=np.float32) for v in p.variables])
+    if p.member_fractions:  # one layer per member after the variables
+        out = np.concatenate([out, member_fractions.astype(np.float32)])
     return out
+
+
+def reference_fraction(et_hourly, hourly_reference, factor=1.0) -> np.ndarray:
+    """ET at overpass over the hourly reference ET (times ``factor``, a member's own view of
+    reference ET) [-]; NaN where there is no positive reference ET."""
+    if hourly_reference is None or not np.any(np.asarray(hourly_reference) > 0):
+        return np.full(np.shape(et_hourly), np.nan)
+    reference = factor * np.asarray(hourly_reference)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(reference > 0, et_hourly / reference, np.nan)
 
 
 def combine_block_summaries(a, b):

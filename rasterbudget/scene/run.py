@@ -20,7 +20,13 @@ import numpy as np
 
 from .. import __version__
 from ..catalog.classes import ClassTable
-from ..catalog.variables import QA_OUTPUT, VARIABLES, histogram_variables, scene_outputs
+from ..catalog.variables import (
+    MEMBER_FRACTIONS,
+    QA_OUTPUT,
+    VARIABLES,
+    histogram_variables,
+    scene_outputs,
+)
 from ..errors import OutputError, RasterBudgetError
 from ..io.engine import BlockLayout, Target, Tiles, run_blockwise
 from ..io.grid import GDAL_OPTIONS, input_source
@@ -349,6 +355,27 @@ def _second_pass(
     )
     variables = (*written, QA_OUTPUT, "land_cover_code")
     writers, targets = _open_outputs(written, variables, scene, settings, out_dir, layout, ctx)
+    # the members' reference-ET fractions, one band each after the variables: what a season
+    # needs to carry every member through to its totals
+    member_bands = (
+        tuple(f"member_{k + 1:02d}" for k in range(len(calibrated.members)))
+        if calibrated.members and ctx.constants.reference_et_hourly is not None
+        else ()
+    )
+    if member_bands:
+        stack = AtomicRaster.for_variable(
+            MEMBER_FRACTIONS,
+            out_dir,
+            ctx.grid,
+            block_size_for(layout.chunk),
+            {"scene_id": scene.id, "members": len(member_bands)},
+            bands=member_bands,
+            cog=settings.cog,
+            compression=settings.compression,
+        )
+        writers.append(stack)
+        last = len(variables)
+        targets.append(Target(slice(last, last + len(member_bands)), stack.dtype, stack))
     summarised = histogram_variables(variables)
     panel_names = [name for name, *_ in PANELS] if settings.quicklook else []
     step = decimation_factor(ctx.grid.width, ctx.grid.height)
@@ -362,9 +389,10 @@ def _second_pass(
                 variables=variables,
                 method_params=calibrated.params,
                 members=calibrated.members,
+                member_fractions=bool(member_bands),
             ),
         ),
-        layers=len(variables),
+        layers=len(variables) + len(member_bands),
         dtype=np.float32,
         targets=targets,
         summarise=partial(

@@ -17,6 +17,7 @@ import numpy as np
 
 from ..errors import InputRasterError
 from ..io.paths import output_folder
+from ..methods.ensemble import member_percentiles, member_spread
 from ..scene.manifest import sha256_of, versions
 
 #: Category code -> name (codes of the drought_category raster; 0 = no value).
@@ -160,11 +161,17 @@ def _json_ready(value):
 
 
 def compare_block(
-    current: Path, previous: Path | None, baseline: list[Path], location
+    current: Path,
+    previous: Path | None,
+    baseline: list[Path],
+    members: tuple[Path, Path] | None,
+    location,
 ) -> np.ndarray:
     """The comparison layers of one block, a float64 array (layers, rows, cols): current, then
     with ``previous`` previous, difference and percent change [%], then with two or more
     ``baseline`` rasters the baseline mean, standardized anomaly [-] and drought category code.
+    With ``members`` (the current and previous rasters' member stacks) then the p10, p50 and p90
+    of the members' differences and each member's difference (member k minus member k).
     Masked pixels are NaN; ``location`` is the block's ((row0, row1), (col0, col1))."""
     import rasterio
     from rasterio import windows
@@ -188,7 +195,67 @@ def compare_block(
             warnings.simplefilter("ignore", RuntimeWarning)
             mean = np.nanmean(stack, axis=0)
         out += [mean, z, drought_category(z).astype(np.float64)]
+    if members is not None:
+        stacks = []
+        for p in members:
+            with rasterio.open(p) as src:
+                stacks.append(src.read(window=window, masked=True).astype(np.float64))
+        differences = difference(stacks[0].filled(np.nan), stacks[1].filled(np.nan))
+        # difference_p10, _p50, _p90, then each member's difference
+        out += [*member_percentiles(differences).values(), *differences]
     return np.stack(out)
+
+
+def member_stacks(current: Path, previous: Path | None) -> tuple[Path, Path] | str:
+    """The member stacks beside the current and previous rasters (``<stem>_members.tif``, as a
+    season writes them) when both have the same members; else why the comparison has none."""
+    if previous is None:
+        return "no previous raster"
+    stacks = tuple(Path(p).with_name(f"{Path(p).stem}_members.tif") for p in (current, previous))
+    if not all(p.is_file() for p in stacks):
+        return "the compared rasters have no member stacks beside them"
+    parameters = []
+    for p in stacks:
+        try:
+            manifest = json.loads((p.parent / "manifest.json").read_text())
+        except (OSError, ValueError):
+            return f"no readable manifest beside {p}"
+        parameters.append((manifest.get("uncertainty") or {}).get("member_parameters"))
+    if parameters[0] is None or parameters[0] != parameters[1]:
+        return "the two runs' ensemble members differ (seed or ranges)"
+    return stacks
+
+
+def with_member_percentiles(rows: list[dict], n_members: int) -> list[dict]:
+    """Zone rows with the p10, p50 and p90 of the members' zone-mean differences (and of their
+    volumes for depths), the per-member columns folded away."""
+    out = []
+    for row in rows:
+        means = np.array([row.pop(f"{member_name(k)}_mean") for k in range(n_members)])
+        extra = {}
+        for suffix, value in member_percentiles(means).items():
+            extra[f"difference_mean_{suffix}"] = value
+            if "difference_volume_m3" in row:
+                extra[f"difference_volume_m3_{suffix}"] = value / 1000.0 * row["area_m2"]
+        out.append(row | extra)
+    return out
+
+
+def _uncertainty(members: tuple | str, member_means: list) -> dict:
+    """compare.json's ``uncertainty``: the members' mean differences and their p10, p50 and
+    p90, or why there are none."""
+    if isinstance(members, str):
+        return {"members": 0, "why_none": members}
+    from .totals import MEMBER_ASSUMPTION
+
+    return member_spread(member_means, "mean_difference") | {
+        "assumption": MEMBER_ASSUMPTION
+        + "; member k of the two runs is one draw too, so errors common to both cancel",
+    }
+
+
+def member_name(k: int) -> str:
+    return f"difference_member_{k + 1:02d}"
 
 
 def zone_sums_of_block(
@@ -276,6 +343,7 @@ def _write_tables(
     summarised: list[str],
     tile_size: int,
     zone_tables: tuple | None,
+    zone_names: list[str],
 ) -> None:
     """tiles.csv/geojson, categories.csv and zones.csv/geojson of a comparison; listed in (and,
     for categories and zones, added to) ``summary``."""
@@ -289,7 +357,7 @@ def _write_tables(
     summary["outputs"] += ["tiles.csv", "tiles.geojson"]
     with_category = "drought_category" in names
     if with_category:
-        counts = result.reductions
+        counts = result.reductions[:8]
         valid = sum(int(c) for c in counts[1:])
         share = [
             {
@@ -308,10 +376,12 @@ def _write_tables(
 
         zone_ids, zone_props, zone_original = zone_tables
         totals = np.sum(result.summary, axis=0)
-        float_names = [n for n in ZONE_VARIABLES if n in names]
         zone_table = zone_comparison_rows(
-            zone_ids, totals, float_names, with_category, summary["units"]
+            zone_ids, totals, zone_names, with_category, summary["units"]
         )
+        n_members = sum(n.startswith("difference_member_") for n in zone_names)
+        if n_members:
+            zone_table = with_member_percentiles(zone_table, n_members)
         write_zone_tables(out_dir, zone_table, zone_props, zone_original)
         summary["zones"] = zone_table
         summary["outputs"] += ["zones.csv", "zones.geojson"]
@@ -371,6 +441,17 @@ def run_compare(
         names += ["baseline_mean", "standardized_anomaly", "drought_category"]
     with_category = "drought_category" in names
     category = names.index("drought_category") if with_category else None
+    members = member_stacks(current, previous)
+    n_members = 0
+    if not isinstance(members, str):
+        with rasterio.open(members[0]) as first, rasterio.open(members[1]) as second:
+            n_members = first.count if first.count == second.count else 0
+        if not n_members:
+            members = "the two member stacks have different numbers of members"
+    member_names = [member_name(k) for k in range(n_members)]
+    if n_members:
+        names += ["difference_p10", "difference_p50", "difference_p90", *member_names]
+    zone_names = [n for n in ZONE_VARIABLES if n in names] + member_names
 
     output_folder(out_dir)
     remove_stale_partials(out_dir)
@@ -379,14 +460,14 @@ def run_compare(
         AtomicRaster.for_variable(n, out_dir, grid, block, fill={"units": units}) for n in written
     ]
     targets = [Target(names.index(w.path.stem), w.dtype, w) for w in writers]
-    summarised = [n for n in names if n != "drought_category"]
+    summarised = [n for n in names if n != "drought_category" and n not in member_names]
     zone_sums = None
     if zone_ids:
         # zone sums over: current, [previous, difference], [baseline mean, anomaly], [category]
         zone_sums = partial(
             zone_sums_of_block,
             grid=grid,
-            keep=[names.index(n) for n in ZONE_VARIABLES if n in names],
+            keep=[names.index(n) for n in zone_names],
             category=category,
             geometries=zone_geoms,
             boxes=[features.bounds(g) for g in zone_geoms],
@@ -395,7 +476,7 @@ def run_compare(
         result = run_blockwise(
             layout,
             compare_block,
-            args=(current, previous, list(baseline)),
+            args=(current, previous, list(baseline), None if n_members == 0 else members),
             layers=len(names),
             dtype=np.float64,
             targets=targets,
@@ -403,10 +484,16 @@ def run_compare(
             # lists of per-block sums, concatenated in row-major order
             combine=operator.add if zone_sums is not None else None,
             tiles=Tiles([names.index(n) for n in summarised], tile_size, tile_statistics),
-            # pixels per category code 0-7 of the whole raster, by dask's reductions
+            # pixels per category code 0-7 of the whole raster and the members' mean
+            # differences, by dask's reductions
             reduce_array=(
-                (lambda array: [da.sum(array[category] == c) for c in range(8)])
-                if with_category
+                (
+                    lambda array: [
+                        *(da.sum(array[category] == c) for c in range(8) if with_category),
+                        *(da.nanmean(array[names.index(n)]) for n in member_names),
+                    ]
+                )
+                if with_category or n_members
                 else None
             ),
             outputs=writers,
@@ -425,8 +512,11 @@ def run_compare(
             for p in [current, *([previous] if previous else []), *baseline]
         },
         "parameters": {"chunk_size": chunk, "tile_size": tile_size, "zones": _zone_spec(zones)},
+        "uncertainty": _uncertainty(members, result.reductions[8 if with_category else 0 :]),
         "versions": versions(),
     }
-    _write_tables(summary, out_dir, grid, result, names, summarised, tile_size, zone_tables)
+    _write_tables(
+        summary, out_dir, grid, result, names, summarised, tile_size, zone_tables, zone_names
+    )
     write_text_atomic(out_dir / "compare.json", json.dumps(_json_ready(summary), indent=2) + "\n")
     return summary

@@ -17,46 +17,65 @@ from pathlib import Path
 
 import numpy as np
 
+from ..methods.ensemble import member_percentiles
+
 SERIES_TABLE = "zones_series.csv"
 MONTHLY_TABLE = "zones_monthly.csv"
 
 
 def scene_rows(out_dir: Path, scenes: list, fractions: dict[str, dict]) -> list[dict]:
-    """One row per zone and completed scene (sorted by date)."""
+    """One row per zone and completed scene (sorted by date). ``fractions`` holds per scene
+    and zone the zone's mean reference-ET fraction and, with an ensemble, its members' (an
+    array) with their reference-ET factors: the members' daily ET then gives the row's p10,
+    p50 and p90."""
+    from .zones import reference_depth
+
     rows = []
     for scene in sorted(scenes, key=lambda s: s.acquired_utc):
         table = out_dir / scene.id / "zones.csv"
         if not table.is_file():
             continue
+        zones = fractions.get(scene.id, {})
+        daily_reference = reference_depth(out_dir / scene.id)
         with table.open(newline="", encoding="utf-8") as f:
             for zone in csv.DictReader(f):
-                rows.append(
-                    {
-                        "zone_id": zone["zone_id"],
-                        "scene_id": scene.id,
-                        "date": scene.acquired_utc.date().isoformat(),
-                        "et_daily_mm": float(zone["mean_depth_mm"]),
-                        "reference_et_fraction": fractions.get(scene.id, {}).get(
-                            zone["zone_id"], float("nan")
-                        ),
-                        "valid_share": float(zone["valid_share"]),
-                        "flagged_share": float(zone["flagged_share"]),
-                        "covered_share": float(zone["covered_share"]),
-                    }
-                )
+                mine = zones.get(zone["zone_id"], {})
+                row = {
+                    "zone_id": zone["zone_id"],
+                    "scene_id": scene.id,
+                    "date": scene.acquired_utc.date().isoformat(),
+                    "et_daily_mm": float(zone["mean_depth_mm"]),
+                    "reference_et_fraction": mine.get("fraction", float("nan")),
+                    "valid_share": float(zone["valid_share"]),
+                    "flagged_share": float(zone["flagged_share"]),
+                    "covered_share": float(zone["covered_share"]),
+                }
+                if "members" in mine:
+                    # each member's daily ET: its fraction x its own daily reference ET (the
+                    # station's, from the scene's manifest, times its factor)
+                    daily = mine["members"] * mine["factors"] * (daily_reference or np.nan)
+                    for suffix, value in member_percentiles(daily).items():
+                        row[f"et_daily_mm_{suffix}"] = float(value)
+                rows.append(row)
     return rows
 
 
-def zone_fraction_means(recipe, settings, scene_ids: list[str]) -> dict[str, dict[str, float]]:
-    """Per scene and zone the coverage-and-area weighted mean reference-ET fraction."""
+def zone_fraction_means(recipe, settings, scene_ids: list[str]) -> dict[str, dict[str, dict]]:
+    """Per scene and zone the coverage-and-area weighted mean reference-ET fraction
+    (``fraction``) and, where the scene has ensemble members, the members' (``members``, an
+    array) and their reference-ET factors (``factors``)."""
+    import json
+
     import rasterio
 
+    from ..catalog.variables import MEMBER_FRACTIONS
     from ..io.engine import effective_chunk_size
     from ..recipe import resolve_path
     from .zones import load_zones, zone_rows, zone_totals
 
-    out: dict[str, dict[str, float]] = {}
+    out: dict[str, dict[str, dict]] = {}
     prepared: dict[str, tuple] = {}  # the zones on each grid CRS: read and transformed once
+    chunk = effective_chunk_size(settings.chunk_size)
     for sid in scene_ids:
         raster = settings.out_dir / sid / "reference_et_fraction.tif"
         if not raster.is_file():
@@ -69,10 +88,24 @@ def zone_fraction_means(recipe, settings, scene_ids: list[str]) -> dict[str, dic
             )
             prepared[crs.to_wkt()] = (ids, geometries)
         ids, geometries = prepared[crs.to_wkt()]
-        totals = zone_totals(raster, geometries, effective_chunk_size(settings.chunk_size))
-        rows = zone_rows(ids, totals, "reference_et_fraction")
+        # over valid unflagged cells, as the zone tables' depths (flagged: reported apart)
+        qa = settings.out_dir / sid / "qa_flags.tif"
+        qa = qa if qa.is_file() else None
         # mean_depth_mm is the weighted mean of the raster's values (here a fraction, not mm)
-        out[sid] = {r["zone_id"]: r["mean_depth_mm"] for r in rows}
+        rows = zone_rows(ids, zone_totals(raster, geometries, chunk, qa), "reference_et_fraction")
+        out[sid] = {r["zone_id"]: {"fraction": r["mean_depth_mm"]} for r in rows}
+        stack = settings.out_dir / sid / f"{MEMBER_FRACTIONS}.tif"
+        if not stack.is_file():
+            continue
+        manifest = json.loads((settings.out_dir / sid / "manifest.json").read_text())
+        factors = np.array([m["reference_et_factor"] for m in manifest["ensemble"]])
+        per_member = [
+            zone_rows(ids, totals, MEMBER_FRACTIONS)
+            for totals in zone_totals(stack, geometries, chunk, qa, bands=True)
+        ]
+        for k, zone in enumerate(ids):
+            members = np.array([m[k]["mean_depth_mm"] for m in per_member])
+            out[sid][zone] |= {"members": members, "factors": factors}
     return out
 
 
@@ -97,9 +130,16 @@ def water_year(day: dt.date) -> int:
 
 
 def monthly_rows(
-    season_id: str, rows: list[dict], scene_ids: list[str], days: list[dt.date], etr: np.ndarray
+    season_id: str,
+    rows: list[dict],
+    scene_ids: list[str],
+    days: list[dt.date],
+    etr: np.ndarray,
+    fractions: dict[str, dict] | None = None,
 ) -> list[dict]:
-    """Per zone the season's ET and reference ET by month and by water year [mm]."""
+    """Per zone the season's ET and reference ET by month and by water year [mm]; with the
+    ensemble members' zone fractions (``fractions``, as :func:`zone_fraction_means` gives
+    them), the p10, p50 and p90 of the members' own totals."""
     out = []
     zones = sorted({r["zone_id"] for r in rows})
     for zone in zones:
@@ -108,25 +148,33 @@ def monthly_rows(
             key=lambda r: r["date"],
         )
         dates = [dt.date.fromisoformat(r["date"]) for r in mine]
-        fractions = [r["reference_et_fraction"] for r in mine]
-        daily = daily_zone_et(dates, fractions, days, etr)
+        daily = daily_zone_et(dates, [r["reference_et_fraction"] for r in mine], days, etr)
+        found = [(fractions or {}).get(r["scene_id"], {}).get(zone, {}) for r in mine]
+        members = []
+        if found and all("members" in f for f in found):
+            members = [
+                daily_zone_et(dates, [f["members"][m] for f in found], days, etr * factor)
+                for m, factor in enumerate(found[0]["factors"])
+            ]
         for key, label in ((lambda d: f"{d:%Y-%m}", "month"), (water_year, "water_year")):
             groups: dict = {}
-            for day, et, ref in zip(days, daily, etr, strict=True):
-                groups.setdefault(key(day), []).append((et, ref))
-            for period, values in groups.items():
-                et_sum = float(np.sum([v[0] for v in values]))
-                out.append(
-                    {
-                        "season_id": season_id,
-                        "zone_id": zone,
-                        "period": label,
-                        "value": str(period),
-                        "days": len(values),
-                        "et_mm": et_sum,
-                        "reference_et_mm": float(np.sum([v[1] for v in values])),
-                    }
-                )
+            for k, day in enumerate(days):
+                groups.setdefault(key(day), []).append(k)
+            for period, index in groups.items():
+                row = {
+                    "season_id": season_id,
+                    "zone_id": zone,
+                    "period": label,
+                    "value": str(period),
+                    "days": len(index),
+                    "et_mm": float(np.sum(daily[index])),
+                    "reference_et_mm": float(np.sum(etr[index])),
+                }
+                if members:
+                    totals = [float(np.sum(m[index])) for m in members]
+                    for suffix, value in member_percentiles(totals).items():
+                        row[f"et_mm_{suffix}"] = float(value)
+                out.append(row)
     return out
 
 

@@ -21,6 +21,7 @@ import numpy as np
 
 from ..errors import RecipeError
 from ..io.paths import output_folder
+from ..methods.ensemble import member_percentiles, member_spread
 from ..physics import reference_et
 from ..physics.constants import ZERO_CELSIUS
 from ..scene.manifest import sha256_of, versions
@@ -28,6 +29,8 @@ from ..scene.manifest import sha256_of, versions
 #: season_qa bits
 SEASON_FILLED = 1  # at least one scene was missing at this pixel and was filled in time
 SEASON_EMPTY = 2  # no valid scene at all: no total
+SEASON_UNRELIABLE = 4  # a scene flagged the residual unreliable (water, snow, built-up)
+SEASON_QA = "season_qa.tif"
 
 
 @dataclass(frozen=True)
@@ -252,16 +255,70 @@ def grid_check(paths: list[Path]) -> None:
                 )
 
 
+#: A member's parameters as the scene manifests record them, without its fitted calibration.
+MEMBER_KEYS = (
+    "cold_percentile",
+    "hot_percentile",
+    "cold_anchor_factor",
+    "air_temperature_offset",
+    "wind_factor",
+    "surface_temperature_offset",
+    "albedo_offset",
+    "reference_et_factor",
+)
+
+#: What carrying members through a season assumes (stated in its manifest).
+MEMBER_ASSUMPTION = (
+    "member k of every scene is one draw (the same anchor percentiles, offsets and factors in "
+    "each scene), so the errors are taken as fully correlated between scenes: none averages "
+    "out over the season, and the p10-p90 band is the wider, conservative one"
+)
+
+
+@dataclass(frozen=True)
+class SeasonMembers:
+    """The scenes' member stacks (sorted as the scenes) and each member's reference-ET factor."""
+
+    stacks: list[Path]
+    reference_et_factors: np.ndarray  # (members,)
+    parameters: list[dict]
+
+
+def season_members(out_dir: Path, scenes: list) -> SeasonMembers | str:
+    """Every scene's ensemble members, when all scenes have the same ones; else why not."""
+    from ..catalog.variables import MEMBER_FRACTIONS
+
+    stacks, first = [], None
+    for scene in scenes:
+        manifest = json.loads((out_dir / scene.id / "manifest.json").read_text())
+        members = [{k: m[k] for k in MEMBER_KEYS} for m in manifest.get("ensemble") or []]
+        stack = out_dir / scene.id / f"{MEMBER_FRACTIONS}.tif"
+        if not members or not stack.is_file():
+            return f"scene {scene.id} has no ensemble members with reference-ET fractions"
+        if first is None:
+            first = members
+        elif members != first:
+            return (
+                f"scene {scene.id}'s members differ from {scenes[0].id}'s; give every scene "
+                "the same [scene.uncertainty] (seed and ranges)"
+            )
+        stacks.append(stack)
+    factors = np.array([m["reference_et_factor"] for m in first])
+    return SeasonMembers(stacks, factors, first)
+
+
 def season_block_layers(
     paths: list[Path],
     weights: SeasonWeights | None,
     reference_total: float | None,
     gridded: tuple | None,
+    members: SeasonMembers | None,
     location,
 ) -> np.ndarray:
-    """The season layers of one block, a float64 array (4, rows, cols): season ET [mm], mean
+    """The season layers of one block, a float64 array (5, rows, cols): season ET [mm], mean
     fraction [-] (season ET over the season's reference ET ``reference_total`` [mm]),
-    valid-scene count and season QA bits.
+    valid-scene count, season QA bits and the season's reference ET [mm]; with ``members``
+    then the p10, p50 and p90 of the members' season ET and each member's season ET [mm].
 
     ``paths`` are the scenes' fraction rasters sorted by date; ``location`` is the block's
     ((row0, row1), (col0, col1)). With gridded daily reference ET, ``gridded`` holds (the
@@ -271,12 +328,20 @@ def season_block_layers(
     import rasterio
     from rasterio.windows import Window
 
+    from ..catalog.qa import QA
+
     (r0, r1), (c0, c1) = location
     window = Window(c0, r0, c1 - c0, r1 - r0)
     stack = []
+    unreliable = np.zeros((r1 - r0, c1 - c0), bool)
     for p in paths:
         with rasterio.open(p) as src:
             stack.append(src.read(1, window=window).astype(np.float64))
+        flags = p.with_name("qa_flags.tif")
+        if flags.is_file():
+            with rasterio.open(flags) as src:
+                bits = src.read(1, window=window)
+            unreliable |= (bits & int(QA.RESIDUAL_UNRELIABLE_CLASS)) != 0
     if gridded is not None:
         from ..io.grid import read_window
 
@@ -285,11 +350,27 @@ def season_block_layers(
         weights = season_weights(scene_days, days, etr)
         reference_total = etr.sum(axis=0)
     total, count, qa = season_total_block(np.stack(stack), weights)
+    qa = qa | np.where(unreliable, SEASON_UNRELIABLE, 0).astype(np.uint8)
     # the mean fraction is divided here, in float64, as the whole-array division did
     reference = np.broadcast_to(reference_total, total.shape)
-    return np.stack(
-        [total, total / reference, count.astype(np.float64), qa.astype(np.float64), reference]
+    layers = [total, total / reference, count.astype(np.float64), qa.astype(np.float64), reference]
+    if members is None:
+        return np.stack(layers)
+    fractions = []
+    for p in members.stacks:
+        with rasterio.open(p) as src:
+            fractions.append(src.read(window=window).astype(np.float64))
+    fractions = np.stack(fractions)  # (scenes, members, rows, cols)
+    # each member's season with its own reference ET: the season's times its factor
+    totals = np.stack(
+        [
+            season_total_block(fractions[:, m], weights)[0] * factor
+            for m, factor in enumerate(members.reference_et_factors)
+        ]
     )
+    # p10, p50, p90 per pixel (et_season_p10, _p50, _p90), then each member's total
+    spread = list(member_percentiles(totals).values())
+    return np.concatenate([np.stack(layers), spread, totals])
 
 
 def run_season(recipe, season, settings) -> dict:
@@ -355,24 +436,42 @@ def run_season(recipe, season, settings) -> dict:
     layout = BlockLayout.over(grid, settings.chunk_size)
     block = block_size_for(layout.chunk)
     fill = {"start": season.start, "end": season.end, "fraction": stem}
+    tags = {"season": season.id}
     writers = [
-        AtomicRaster.for_variable(name, out_dir, grid, block, {"season": season.id}, fill)
+        AtomicRaster.for_variable(name, out_dir, grid, block, tags, fill)
         for name in ("et_season", "mean_fraction", "scene_count", "season_qa")
     ]
+    targets = [Target(k, w.dtype, w) for k, w in enumerate(writers)]
+    members = season_members(settings.out_dir, chosen)
+    n_members = 0 if isinstance(members, str) else len(members.reference_et_factors)
+    if n_members:
+        for k, name in enumerate(("et_season_p10", "et_season_p50", "et_season_p90"), start=5):
+            writers.append(AtomicRaster.for_variable(name, out_dir, grid, block, tags, fill))
+            targets.append(Target(k, writers[-1].dtype, writers[-1]))
+        bands = tuple(f"member_{k + 1:02d}" for k in range(n_members))
+        stack = AtomicRaster.for_variable(
+            "et_season_members", out_dir, grid, block, tags, fill, bands=bands
+        )
+        writers.append(stack)
+        targets.append(Target(slice(8, 8 + n_members), stack.dtype, stack))
     with rasterio.Env(**GDAL_OPTIONS):
         result = run_blockwise(
             layout,
             season_block_layers,
-            args=(paths, weights, reference_total, gridded),
-            layers=5,
+            args=(paths, weights, reference_total, gridded, members if n_members else None),
+            layers=5 + (3 + n_members if n_members else 0),
             dtype=np.float64,
-            targets=[Target(k, w.dtype, w) for k, w in enumerate(writers)],
+            targets=targets,
             # dask's own nanmean over the whole array: its summation order, hence its last bits,
             # are the manifest's mean
-            reduce_array=lambda array: [da.nanmean(array[0]), da.nanmean(array[4])],
+            reduce_array=lambda array: [
+                da.nanmean(array[0]),
+                da.nanmean(array[4]),
+                *(da.nanmean(array[8 + m]) for m in range(n_members)),
+            ],
             outputs=writers,
         )
-    mean_total, mean_reference = result.reductions
+    mean_total, mean_reference, *member_means = result.reductions
     outputs = {w.path.name: str(w.path) for w in writers}
     content = {
         "season_id": season.id,
@@ -400,11 +499,24 @@ def run_season(recipe, season, settings) -> dict:
             if gridded is not None
             else [_resolve(recipe, season.weather)],
         ),
+        "uncertainty": season_uncertainty(members, member_means),
         "versions": versions(),
         "caution": "Season totals interpolate between a few scenes; see the README's cautions.",
     }
     write_season_manifest(out_dir / "manifest.json", content)
     return content
+
+
+def season_uncertainty(members: SeasonMembers | str, member_means: list) -> dict:
+    """The manifest's ``uncertainty``: the members' mean season ET and its percentiles over the
+    members' own means, what that assumes, or why the season has none."""
+    if isinstance(members, str):
+        return {"members": 0, "why_none": members}
+    return member_spread(member_means, "mean_et_season_mm") | {
+        "member_parameters": members.parameters,
+        "assumption": MEMBER_ASSUMPTION,
+        "percentiles": "over the members' own totals (not of pixels)",
+    }
 
 
 def _resolve(recipe, value: str) -> Path:

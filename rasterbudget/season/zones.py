@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import RecipeError
+from ..methods.ensemble import member_percentiles
 
 CUBIC_METRES_PER_ACRE_FOOT = 1233.48183754752  # 43,560 ft3 x 0.3048^3 m3 per ft3
 
@@ -262,10 +263,11 @@ def block_coverage(
 
 
 def zone_sums_of_raster_block(
-    raster: Path, geometries: list, boxes: list, grid, qa: Path | None, location
+    raster: Path, geometries: list, boxes: list, grid, qa: Path | None, bands: bool, location
 ) -> list[np.ndarray]:
-    """A one-item list holding ``zone_block`` of one block of a depth raster [mm]. A list so
-    that the blocks' sums concatenate in row-major order and are added in that order."""
+    """A one-item list holding ``zone_block`` of one block of a depth raster [mm] (with
+    ``bands``, of each of its bands, stacked: the cells' coverage found once). A list so that
+    the blocks' sums concatenate in row-major order and are added in that order."""
     import rasterio
     from rasterio import windows
 
@@ -274,19 +276,29 @@ def zone_sums_of_raster_block(
     (r0, r1), (c0, c1) = location
     window = windows.Window(c0, r0, c1 - c0, r1 - r0)
     with rasterio.open(raster) as src:
-        depth = src.read(1, window=window, masked=True).astype(np.float64).filled(np.nan)
+        indexes = None if bands else 1
+        depth = src.read(indexes, window=window, masked=True).astype(np.float64).filled(np.nan)
     flagged = None
     if qa is not None:
+        from .totals import SEASON_QA, SEASON_UNRELIABLE
+
+        # a scene's QA flags, or a season's QA bits (a scene flagged the pixel's residual)
+        bit = SEASON_UNRELIABLE if qa.name == SEASON_QA else int(QA.RESIDUAL_UNRELIABLE_CLASS)
         with rasterio.open(qa) as src:
             bits = src.read(1, window=window).astype(np.int64)
-        flagged = (bits & int(QA.RESIDUAL_UNRELIABLE_CLASS)) != 0
+        flagged = (bits & bit) != 0
     coverage = block_coverage(geometries, boxes, grid, location)
-    return [zone_block(depth, coverage, len(geometries), flagged)]
+    if not bands:
+        return [zone_block(depth, coverage, len(geometries), flagged)]
+    return [np.stack([zone_block(d, coverage, len(geometries), flagged) for d in depth])]
 
 
-def zone_totals(raster: Path, geometries: list, chunk: int, qa: Path | None = None) -> np.ndarray:
+def zone_totals(
+    raster: Path, geometries: list, chunk: int, qa: Path | None = None, bands: bool = False
+) -> np.ndarray:
     """Sum zone_block over the raster's blocks of ``chunk`` pixels (one pass, bounded memory):
-    per zone the :data:`SUMS`."""
+    per zone the :data:`SUMS`, an array (sums, zones); with ``bands`` for each band of the
+    raster, an array (bands, sums, zones)."""
     import operator
 
     import rasterio
@@ -301,7 +313,7 @@ def zone_totals(raster: Path, geometries: list, chunk: int, qa: Path | None = No
     result = run_blockwise(
         BlockLayout(grid.height, grid.width, chunk),
         zone_sums_of_raster_block,
-        args=(raster, geometries, boxes, grid, qa),
+        args=(raster, geometries, boxes, grid, qa, bands),
         combine=operator.add,  # concatenates the blocks' one-item lists, in row-major order
     )
     # added block after block in row-major order, whatever the engine's reduction tree: the
@@ -368,6 +380,22 @@ def zone_rows(
     return rows
 
 
+def with_member_percentiles(
+    rows: list[dict], ids: list[str], member_totals: np.ndarray, areas: list[float] | None
+) -> list[dict]:
+    """Rows with the p10, p50 and p90 of the zone's mean depth and volume over the ensemble
+    members, each member's own zone total first (``member_totals``: (members, sums, zones))."""
+    per_member = [zone_rows(ids, totals, "", areas) for totals in member_totals]
+    out = []
+    for k, row in enumerate(rows):
+        extra = {}
+        for column in ("mean_depth_mm", "volume_m3"):
+            found = member_percentiles([m[k][column] for m in per_member])
+            extra |= {f"{column}_{suffix}": float(v) for suffix, v in found.items()}
+        out.append(row | extra | {"members": len(per_member)})
+    return out
+
+
 def reference_depth(folder: Path) -> float | None:
     """The reference ET of a scene's day or a season's days [mm], from its manifest."""
     try:
@@ -425,6 +453,7 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
 
     from ..io.engine import effective_chunk_size
     from ..recipe import resolve_path
+    from .totals import SEASON_QA
 
     spec = recipe.zones
     written = []
@@ -444,6 +473,8 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
             prepared[crs.to_wkt()] = (ids, props, geometries, areas, lonlat)
         ids, props, geometries, areas, lonlat = prepared[crs.to_wkt()]
         qa = settings.out_dir / folder / "qa_flags.tif"
+        if not qa.is_file():  # a season: its own QA bits
+            qa = settings.out_dir / folder / SEASON_QA
         totals = zone_totals(
             raster,
             geometries,
@@ -451,6 +482,16 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
             qa if qa.is_file() else None,
         )
         rows = zone_rows(ids, totals, variable, areas)
+        members = settings.out_dir / folder / f"{variable}_members.tif"
+        if members.is_file():  # a season's members: their zone totals' percentiles
+            member_totals = zone_totals(
+                members,
+                geometries,
+                effective_chunk_size(settings.chunk_size),
+                qa if qa.is_file() else None,
+                bands=True,
+            )
+            rows = with_member_percentiles(rows, ids, member_totals, areas)
         if spec.flagged_substitute is not None:
             rows = with_substitute(
                 rows, spec.flagged_substitute, reference_depth(settings.out_dir / folder)
