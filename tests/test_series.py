@@ -120,6 +120,31 @@ def test_dry_year_uses_less_water_in_both_sub_basins(series_run):
     assert max(totals, key=totals.get) == SERIES_DRY_YEAR
 
 
+def test_the_report_and_zone_tables_carry_the_members_p10_p90(series_run, compare_run):
+    """The series demo runs 8 ensemble members: season totals, zone depths and volumes, the
+    zone time series and the comparisons carry p10-p90 bands over the members' own totals."""
+    page = (series_run / "report.html").read_text()
+    assert page.count("Uncertainty: over 8 ensemble members the mean season ET is") == 5
+    assert "Shaded: the ensemble members' p10 to p90" in page
+    assert "Whiskers: the members' p10 to p90" in page
+    for year in SERIES_YEARS:
+        with (series_run / f"summer_{year}" / "zones.csv").open() as f:
+            for row in csv.DictReader(f):
+                low, mid, high = (float(row[f"volume_m3_{q}"]) for q in ("p10", "p50", "p90"))
+                assert 0 < low < mid < high, (year, row["zone_id"])
+    with (series_run / "zones_series.csv").open() as f:
+        assert all(
+            float(r["et_daily_mm_p10"]) < float(r["et_daily_mm_p90"]) for r in csv.DictReader(f)
+        )
+    summary = json.loads((compare_run / "summer_2025_vs_2024" / "compare.json").read_text())
+    spread = summary["uncertainty"]["mean_difference"]
+    assert spread["p10"] < spread["p50"] < spread["p90"] < 0  # the dry year: less ET
+    assert (
+        "Uncertainty: over 8 ensemble members (member k minus member k)"
+        in (compare_run / "report.html").read_text()
+    )
+
+
 def _read(path: Path) -> np.ndarray:
     with rasterio.open(path) as src:
         return src.read(1, masked=True).astype(float).filled(np.nan)

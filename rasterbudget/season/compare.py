@@ -460,7 +460,9 @@ def run_compare(
         AtomicRaster.for_variable(n, out_dir, grid, block, fill={"units": units}) for n in written
     ]
     targets = [Target(names.index(w.path.stem), w.dtype, w) for w in writers]
-    summarised = [n for n in names if n != "drought_category" and n not in member_names]
+    # tiles summarise the compared values; the members' spread is in its own rasters
+    spread = {"difference_p10", "difference_p50", "difference_p90", *member_names}
+    summarised = [n for n in names if n != "drought_category" and n not in spread]
     zone_sums = None
     if zone_ids:
         # zone sums over: current, [previous, difference], [baseline mean, anomaly], [category]
