@@ -461,9 +461,12 @@ class SeasonSettings(_Strict):
     end: dt.date
     scenes: list[str] = Field(min_length=1)
     weather: str | None = None  # CSV daily weather table, relative to the recipe
-    # or daily reference ET rasters [mm d-1]: one per day, a path with {date} (YYYYMMDD), or
-    # one multi-band file whose band descriptions are the dates (YYYY-MM-DD)
+    # or daily reference ET rasters [mm d-1]: one per day, a path with {date} (YYYYMMDD), one
+    # multi-band file whose band descriptions are the dates (YYYY-MM-DD), or a NetCDF file or
+    # Zarr store with a time axis
     reference_et_rasters: str | None = None
+    # in a NetCDF file or Zarr store: the variable (else the one variable with a time axis)
+    reference_et_variable: str | None = None
     fraction: str = "reference_et_fraction"  # the scene raster interpolated between scenes
     reference: Literal["short", "tall"] = "tall"
     station_elevation_m: float | None = None

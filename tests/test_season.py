@@ -16,6 +16,7 @@ from rasterbudget.season.totals import (
     SEASON_FILLED,
     season_days,
     season_total_block,
+    season_total_by_day,
     season_weights,
 )
 from tests.conftest import ROOT
@@ -55,6 +56,23 @@ def test_a_masked_scene_is_filled_from_its_neighbours_and_flagged():
     assert count.tolist() == [[2, 3]] and qa.tolist() == [[SEASON_FILLED, 0]]
     empty, count, qa = season_total_block(np.full((3, 1, 1), np.nan), w)
     assert np.isnan(empty[0, 0]) and qa[0, 0] == SEASON_FILLED | SEASON_EMPTY
+
+
+def test_day_by_day_totals_equal_the_day_weights_with_gaps_and_pixel_reference_et():
+    """The gridded path streams the days (one in memory at a time); the station path sums day
+    weights per scene. Random fractions with missing scenes (a pixel with none at all, scenes
+    on the first and last day) and a different reference ET per pixel: the same totals."""
+    rng = np.random.default_rng(7)
+    scenes = [dt.date(2026, 6, 1), *SCENES, dt.date(2026, 6, 30)]
+    fractions = rng.uniform(0.1, 1.2, (len(scenes), 6, 5))
+    fractions[rng.random(fractions.shape) < 0.3] = np.nan
+    fractions[:, 0, 0] = np.nan
+    etr = ETR[:, None, None] * rng.uniform(0.7, 1.3, (len(DAYS), 6, 5))
+    streamed, reference = season_total_by_day(fractions, scenes, DAYS, iter(etr))
+    expected, _, _ = season_total_block(fractions, season_weights(scenes, DAYS, etr))
+    np.testing.assert_allclose(streamed, expected, rtol=1e-12, equal_nan=True)
+    assert np.isnan(streamed[0, 0])
+    np.testing.assert_allclose(reference, etr.sum(axis=0), rtol=1e-12)
 
 
 def test_demo_season_end_to_end(tmp_path):

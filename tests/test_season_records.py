@@ -71,7 +71,46 @@ def test_a_comparison_records_its_inputs_and_refuses_a_failed_run(season_run, tm
     assert "not complete (failed: disk full)" in result.output
 
 
-@pytest.mark.parametrize("layout", ["a file per day", "one multi-band stack"])
+def _lonlat_stack(path, days, etr, bounds_lonlat):
+    """A daily reference-ET stack as xarray writes it, on a 0.05 degree longitude/latitude
+    grid around the scene (as gridded weather products are): NetCDF or Zarr by ``path``."""
+    import numpy as np
+    import pandas as pd
+    import rasterio
+    import xarray as xr
+
+    west, south, east, north = bounds_lonlat
+    lon = np.arange(west - 0.1, east + 0.1, 0.05)
+    lat = np.arange(north + 0.1, south - 0.1, -0.05)
+    values = np.broadcast_to(
+        np.asarray(etr, np.float32)[:, None, None], (len(days), *lat.shape, *lon.shape)
+    )
+    field = xr.DataArray(
+        values.copy(),
+        dims=("time", "lat", "lon"),
+        coords={"time": pd.to_datetime(days), "lat": lat, "lon": lon},
+        attrs={"units": "mm d-1", "grid_mapping": "crs", "long_name": "tall reference ET"},
+    )
+    field.lon.attrs = {"standard_name": "longitude", "units": "degrees_east", "axis": "X"}
+    field.lat.attrs = {"standard_name": "latitude", "units": "degrees_north", "axis": "Y"}
+    data = xr.Dataset({"etr_tall": field})
+    data["crs"] = xr.DataArray(
+        0,
+        attrs={
+            "grid_mapping_name": "latitude_longitude",
+            "crs_wkt": rasterio.crs.CRS.from_epsg(4326).to_wkt(),
+        },
+    )
+    if path.suffix == ".zarr":
+        data.to_zarr(path, zarr_format=2)
+    else:
+        data.to_netcdf(path, engine="scipy")  # NetCDF-3: needs no HDF5 library
+    return str(path)
+
+
+@pytest.mark.parametrize(
+    "layout", ["a file per day", "one multi-band stack", "a NetCDF stack", "a Zarr store"]
+)
 def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(
     season_run, tmp_path, layout
 ):
@@ -120,6 +159,14 @@ def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(
         for day, value in zip(days, etr, strict=True):
             with rasterio.open(folder / f"etr_{day:%Y%m%d}.tif", "w", **profile) as dst:
                 dst.write(np.full(shape, value, np.float32), 1)
+    elif layout in ("a NetCDF stack", "a Zarr store"):
+        from rasterio.transform import array_bounds
+        from rasterio.warp import transform_bounds
+
+        edges = array_bounds(profile["height"], profile["width"], profile["transform"])
+        bounds = transform_bounds(profile["crs"], "EPSG:4326", *edges)  # (W, S, E, N)
+        suffix = ".nc" if layout == "a NetCDF stack" else ".zarr"
+        pattern = _lonlat_stack(folder / f"etr{suffix}", days, etr, bounds)
     else:
         pattern = str(folder / "etr_stack.tif")
         stack = profile | {"count": len(days), "tiled": False}
@@ -144,3 +191,39 @@ def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(
         np.testing.assert_allclose(src.read(1), station, rtol=1e-6, equal_nan=True)
     # float32 rasters of the daily values: the reference total within float32 rounding
     assert gridded["reference_et_total_mm"] == pytest.approx(etr.sum(), rel=1e-6)
+
+
+def test_a_daily_stack_that_cannot_serve_gets_one_line(tmp_path):
+    """NetCDF-4 (through h5netcdf) with two variables on a time axis, wrong units, a missing
+    day: each refused with the file and what to change."""
+    import numpy as np
+    import pandas as pd
+    import xarray as xr
+
+    from rasterbudget.errors import InputRasterError
+    from rasterbudget.io.stacks import daily_stack_bands
+
+    days = pd.date_range("2026-06-01", periods=3)
+    field = xr.DataArray(
+        np.ones((3, 2, 2), np.float32),
+        dims=("time", "lat", "lon"),
+        coords={"time": days, "lat": [40.1, 40.0], "lon": [-105.1, -105.0]},
+        attrs={"units": "mm d-1"},
+    )
+    path = tmp_path / "two.nc"
+    xr.Dataset({"etr_tall": field, "eto_short": field}).to_netcdf(path, engine="h5netcdf")
+    with pytest.raises(
+        InputRasterError, match=r"2 variables with a time axis.*reference_et_variable"
+    ):
+        daily_stack_bands(path, None, "daily reference ET")
+    name, bands = daily_stack_bands(path, "eto_short", "daily reference ET")
+    assert name == f'NETCDF:"{path}":eto_short'
+    assert bands == {dt.date(2026, 6, 1): 1, dt.date(2026, 6, 2): 2, dt.date(2026, 6, 3): 3}
+    with pytest.raises(InputRasterError, match="no variable 'etr'"):
+        daily_stack_bands(path, "etr", "daily reference ET")
+    metres = tmp_path / "metres.nc"
+    xr.Dataset({"etr": field.assign_attrs(units="m")}).to_netcdf(metres, engine="h5netcdf")
+    with pytest.raises(InputRasterError, match=r"is in 'm'.*mm"):
+        daily_stack_bands(metres, None, "daily reference ET")
+    with pytest.raises(InputRasterError, match="cannot be opened with xarray"):
+        daily_stack_bands(tmp_path / "absent.nc", None, "daily reference ET")

@@ -9,6 +9,7 @@ bounded by chunk size and each task opens its own handles (safe for threads and 
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -24,7 +25,7 @@ from rasterio.windows import Window
 
 from ..catalog.inputs import CATEGORICAL, WEATHER_ROLES
 from ..errors import InputRasterError
-from .paths import is_remote
+from .paths import is_remote, is_subdataset
 
 #: GDAL settings for every read and write (block cache bounded; see DEVELOPERS.md).
 GDAL_OPTIONS = {"GDAL_CACHEMAX": 64, "GDAL_NUM_THREADS": 1}
@@ -60,8 +61,10 @@ class Grid:
 def _open(path: Path | str, role: str) -> rasterio.io.DatasetReader:
     key = f"overpass.{role}" if role in WEATHER_ROLES else f"inputs.{role}"
     remote = is_remote(path)
-    # A remote location has no file to look for: GDAL opening it is the check.
-    if not remote and not Path(path).exists():
+    # A remote location has no file to look for, nor has a variable of a NetCDF or Zarr stack
+    # (GDAL's NETCDF:"file":variable; its file was checked when the stack was opened): GDAL
+    # opening it is the check.
+    if not remote and not is_subdataset(path) and not Path(path).exists():
         raise InputRasterError(
             f"{role} raster {path} does not exist; check {key} in the recipe "
             "(paths are relative to the recipe file)."
@@ -240,6 +243,39 @@ def _read(src, window: Window, source: InputSource | None = None) -> np.ndarray:
     else:
         band = src.read(index, window=window, masked=True, boundless=False)
         data = band.astype(np.float64).filled(np.nan)
+    return _calibrated(data, src, index, source)
+
+
+def _warp_band(src, window: Window, source: InputSource) -> np.ndarray:
+    """One band of a multi-band file warped onto a window of the target grid.
+
+    A warped VRT of a daily stack warps every band of the window for each band read (0.1 s a
+    read on a 92-band NetCDF against 2 ms here): one band is reprojected alone, with the same
+    GDAL warper and resampling.
+    """
+    from rasterio.warp import reproject
+    from rasterio.windows import transform as window_transform
+
+    g = source.grid
+    index = source.band
+    out = np.full((int(window.height), int(window.width)), np.nan)
+    with warnings.catch_warnings():
+        # rasterio warns while it wraps the destination array, before its transform is set
+        warnings.simplefilter("ignore", rasterio.errors.NotGeoreferencedWarning)
+        reproject(
+            rasterio.band(src, index),
+            out,
+            src_nodata=source.nodata if source.nodata is not None else src.nodatavals[index - 1],
+            dst_transform=window_transform(window, g.transform),
+            dst_crs=g.crs,
+            dst_nodata=np.nan,
+            resampling=source.resampling,
+        )
+    return _calibrated(out, src, index, source)
+
+
+def _calibrated(data: np.ndarray, src, index: int, source: InputSource | None) -> np.ndarray:
+    """A band's values with the file's (or the recipe's) scale and offset and units applied."""
     scale, offset = src.scales[index - 1], src.offsets[index - 1]
     if source is not None:
         scale = scale if source.scale is None else source.scale
@@ -268,6 +304,8 @@ def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) ->
         with rasterio.open(source.path) as src:
             if source.same_grid:
                 data = _read(src, window, source)
+            elif src.count > 1:
+                data = _warp_band(src, window, source)
             else:
                 extra = (
                     {}

@@ -21,6 +21,15 @@ def is_remote(location: str | Path) -> bool:
     return "://" in text or text.startswith(VSI_PREFIX)
 
 
+#: GDAL's names of one variable of a multi-variable file: DRIVER:"file":variable.
+SUBDATASET_PREFIXES = ("NETCDF:", "ZARR:", "HDF5:")
+
+
+def is_subdataset(location: str | Path) -> bool:
+    """True when ``location`` names one variable of a NetCDF, Zarr or HDF5 file for GDAL."""
+    return str(location).startswith(SUBDATASET_PREFIXES)
+
+
 def local_size(location: str | Path) -> int | None:
     """Size in bytes of a local file; None for a remote location (not fetched to measure it)."""
     return None if is_remote(location) else Path(location).stat().st_size

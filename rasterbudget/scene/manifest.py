@@ -31,10 +31,17 @@ CAUTION = (
 
 
 def sha256_of(path: Path) -> str:
+    """SHA-256 of a file; of a folder (a Zarr store), of its files' relative paths and bytes
+    in sorted order."""
+    path = Path(path)
     digest = hashlib.sha256()
-    with open(path, "rb") as f:
-        for chunk in iter(lambda: f.read(1 << 20), b""):
-            digest.update(chunk)
+    files = sorted(p for p in path.rglob("*") if p.is_file()) if path.is_dir() else [path]
+    for file in files:
+        if path.is_dir():
+            digest.update(file.relative_to(path).as_posix().encode() + b"\0")
+        with open(file, "rb") as f:
+            for chunk in iter(lambda: f.read(1 << 20), b""):
+                digest.update(chunk)
     return digest.hexdigest()
 
 

@@ -94,10 +94,16 @@ def season_total_block(fractions: np.ndarray, w: SeasonWeights) -> tuple[np.ndar
         total += np.where(later, f_last * _at(a_k, prev) + f * _at(b_k, prev), 0.0)
         f_last = np.where(v, f, f_last)
         last = np.where(v, k, last)
-    count = valid.sum(axis=0)
     total = np.where(last >= 0, total + f_last * _at(w.trail, np.maximum(last, 0)), np.nan)
+    return (total, *season_counts(fractions))
+
+
+def season_counts(fractions: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Valid scenes per pixel of a (S, rows, cols) stack and the season QA bits they give."""
+    n = fractions.shape[0]
+    count = np.isfinite(fractions).sum(axis=0)
     qa = np.where(count < n, SEASON_FILLED, 0) | np.where(count == 0, SEASON_EMPTY, 0)
-    return total, count.astype(np.uint8), qa.astype(np.uint8)
+    return count.astype(np.uint8), qa.astype(np.uint8)
 
 
 WEATHER_COLUMNS = ("tmax_c", "tmin_c", "wind_speed_m_s", "shortwave_mj_m2")
@@ -203,22 +209,33 @@ def gridded_reference_et(recipe, season, days: list[dt.date], grid) -> list:
     import rasterio
 
     from ..io.grid import check_input, input_source
+    from ..io.stacks import daily_stack_bands, is_stack
 
     pattern = season.reference_et_rasters
-    if "{date}" not in pattern:  # one multi-band stack
+    if "{date}" not in pattern:  # one stack: multi-band GeoTIFF, NetCDF or Zarr
         path = _resolve(recipe, pattern)
-        if not path.is_file():
+        if not path.exists():
             raise RecipeError(f"season {season.id}: reference_et_rasters {path} does not exist.")
-        with rasterio.open(path) as src:
-            bands = {str(d): k + 1 for k, d in enumerate(src.descriptions) if d}
+        if is_stack(path):  # the time axis decoded by xarray, the pixels read by GDAL
+            name, by_date = daily_stack_bands(
+                path, season.reference_et_variable, "daily reference ET"
+            )
+            bands = {d.isoformat(): band for d, band in by_date.items()}
+            described = "has no time step on"
+        else:
+            name = path
+            with rasterio.open(path) as src:
+                bands = {str(d): k + 1 for k, d in enumerate(src.descriptions) if d}
+            described = "has no band described"
         missing = [d for d in days if d.isoformat() not in bands]
         if missing:
             raise RecipeError(
-                f"season {season.id}: {path} has no band described {missing[0]} ({len(missing)} "
-                "days missing); each band's description must be its date, YYYY-MM-DD."
+                f"season {season.id}: {path} {described} {missing[0]} ({len(missing)} days "
+                "missing); each day of the season needs its field (a GeoTIFF band's "
+                "description is its date, YYYY-MM-DD)."
             )
-        check_input(path, "daily reference ET", grid, band=1)
-        source = input_source(path, "reference_et", grid)
+        check_input(name, "daily reference ET", grid, band=1)
+        source = input_source(name, "reference_et", grid)
         return [replace(source, band=bands[d.isoformat()]) for d in days]
     sources = []
     for day in days:
@@ -233,6 +250,13 @@ def gridded_reference_et(recipe, season, days: list[dt.date], grid) -> list:
         check_input(path, "daily reference ET", grid)
         sources.append(input_source(path, "reference_et", grid))
     return sources
+
+
+def reference_et_files(recipe, season, sources: list) -> list[Path]:
+    """The files the daily reference ET came from: the one stack, or each day's raster."""
+    if "{date}" not in season.reference_et_rasters:
+        return [_resolve(recipe, season.reference_et_rasters)]
+    return [Path(src.path) for src in sources]
 
 
 def write_season_manifest(path: Path, content: dict) -> None:
@@ -342,35 +366,78 @@ def season_block_layers(
             with rasterio.open(flags) as src:
                 bits = src.read(1, window=window)
             unreliable |= (bits & int(QA.RESIDUAL_UNRELIABLE_CLASS)) != 0
-    if gridded is not None:
+    fractions = np.stack(stack)[:, None]  # (scenes, variants, rows, cols): the central run
+    if members is not None:  # then each member's
+        member_fractions = []
+        for p in members.stacks:
+            with rasterio.open(p) as src:
+                member_fractions.append(src.read(window=window).astype(np.float64))
+        fractions = np.concatenate([fractions, np.stack(member_fractions)], axis=1)
+    if gridded is None:
+        totals = np.stack(
+            [season_total_block(fractions[:, v], weights)[0] for v in range(fractions.shape[1])]
+        )
+    else:
         from ..io.grid import read_window
 
         sources, scene_days, days = gridded
-        etr = np.stack([read_window(src, slice(r0, r1), slice(c0, c1)) for src in sources])
-        weights = season_weights(scene_days, days, etr)
-        reference_total = etr.sum(axis=0)
-    total, count, qa = season_total_block(np.stack(stack), weights)
+        # one day's reference ET in memory at a time, whatever the season's length
+        daily = (read_window(src, slice(r0, r1), slice(c0, c1)) for src in sources)
+        totals, reference_total = season_total_by_day(fractions, scene_days, days, daily)
+    count, qa = season_counts(fractions[:, 0])
+    total = totals[0]
     qa = qa | np.where(unreliable, SEASON_UNRELIABLE, 0).astype(np.uint8)
     # the mean fraction is divided here, in float64, as the whole-array division did
     reference = np.broadcast_to(reference_total, total.shape)
     layers = [total, total / reference, count.astype(np.float64), qa.astype(np.float64), reference]
     if members is None:
         return np.stack(layers)
-    fractions = []
-    for p in members.stacks:
-        with rasterio.open(p) as src:
-            fractions.append(src.read(window=window).astype(np.float64))
-    fractions = np.stack(fractions)  # (scenes, members, rows, cols)
     # each member's season with its own reference ET: the season's times its factor
-    totals = np.stack(
-        [
-            season_total_block(fractions[:, m], weights)[0] * factor
-            for m, factor in enumerate(members.reference_et_factors)
-        ]
-    )
+    member_totals = totals[1:] * members.reference_et_factors[:, None, None]
     # p10, p50, p90 per pixel (et_season_p10, _p50, _p90), then each member's total
-    spread = list(member_percentiles(totals).values())
-    return np.concatenate([np.stack(layers), spread, totals])
+    spread = list(member_percentiles(member_totals).values())
+    return np.concatenate([np.stack(layers), spread, member_totals])
+
+
+def season_total_by_day(
+    fractions: np.ndarray, scene_days: list[dt.date], days: list[dt.date], daily_reference
+) -> tuple[np.ndarray, np.ndarray]:
+    """Season ET [mm] of (scenes, ...) fractions, day by day: each day's fraction interpolated
+    per pixel between the valid scenes around it (held before the first and after the last),
+    times that day's reference ET from the iterable ``daily_reference`` (one array a day, in
+    order), summed; and the reference ET's sum [mm].
+
+    The same interpolation as :func:`season_weights` with :func:`season_total_block`, but
+    with one day in memory at a time: gridded daily reference ET of a long season would
+    otherwise hold days x block pixels at once. NaN where no scene is valid.
+    """
+    n = fractions.shape[0]
+    valid = np.isfinite(fractions)
+    f = np.where(valid, fractions, 0.0)
+    ts = np.array([(d - days[0]).days for d in scene_days], dtype=float)
+    # following[k]: per pixel the first valid scene from k on (-1: none)
+    following = np.full((n + 1, *fractions.shape[1:]), -1)
+    for k in range(n - 1, -1, -1):
+        following[k] = np.where(valid[k], k, following[k + 1])
+    before = np.full(fractions.shape[1:], -1)  # the last valid scene on or before the day
+    passed = 0  # scenes dated on or before the day
+    total = np.zeros(fractions.shape[1:])
+    reference = 0.0
+    for day, etr in zip(days, daily_reference, strict=True):
+        t = float((day - days[0]).days)
+        while passed < n and ts[passed] <= t:
+            before = np.where(valid[passed], passed, before)
+            passed += 1
+        after = following[passed]  # the first valid scene dated after the day
+        f_before = np.take_along_axis(f, np.maximum(before, 0)[None], axis=0)[0]
+        f_after = np.take_along_axis(f, np.maximum(after, 0)[None], axis=0)[0]
+        t_before, t_after = ts[np.maximum(before, 0)], ts[np.maximum(after, 0)]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            w = np.where((before >= 0) & (after >= 0), (t - t_before) / (t_after - t_before), 0.0)
+        value = np.where(before < 0, f_after, f_before + w * (f_after - f_before))
+        total += value * etr
+        reference = reference + etr
+    return np.where(valid.any(axis=0), total, np.nan), np.asarray(reference)
 
 
 def run_season(recipe, season, settings) -> dict:
@@ -495,7 +562,7 @@ def run_season(recipe, season, settings) -> dict:
             settings.out_dir,
             chosen,
             paths,
-            [Path(src.path) for src in gridded[0]]
+            reference_et_files(recipe, season, gridded[0])
             if gridded is not None
             else [_resolve(recipe, season.weather)],
         ),
