@@ -162,7 +162,13 @@ def run_batch(
 def _zone_series(recipe, settings, outcomes, seasons: list[dict]) -> list[Path]:
     """``zones_series.csv`` (zone x scene date) and ``zones_monthly.csv`` (zone x month and
     water year, per season) under OUT."""
-    from .season.series import monthly_rows, scene_rows, write_series, zone_fraction_means
+    from .season.series import (
+        monthly_rows,
+        scene_rows,
+        write_series,
+        zone_daily_reference,
+        zone_fraction_means,
+    )
     from .season.totals import season_days
 
     done = [o.scene_id for o in outcomes if o.status != "failed"]
@@ -172,14 +178,16 @@ def _zone_series(recipe, settings, outcomes, seasons: list[dict]) -> list[Path]:
     monthly = []
     for manifest in seasons:
         etr = manifest.get("reference_et_daily_mm")
-        if etr is None:  # gridded reference ET: no zone-level daily series
-            continue
+        # a station's days, or with gridded reference ET each zone's own
+        etr = (
+            np.asarray(etr) if etr is not None else zone_daily_reference(recipe, settings, manifest)
+        )
         days = season_days(
             dt.date.fromisoformat(str(manifest["start"])),
             dt.date.fromisoformat(str(manifest["end"])),
         )
         monthly += monthly_rows(
-            manifest["season_id"], rows, manifest["scenes"], days, np.asarray(etr), fractions
+            manifest["season_id"], rows, manifest["scenes"], days, etr, fractions
         )
     return write_series(settings.out_dir, rows, monthly) if rows else []
 

@@ -191,6 +191,20 @@ def test_a_season_with_uniform_gridded_reference_et_equals_the_station_case(
         np.testing.assert_allclose(src.read(1), station, rtol=1e-6, equal_nan=True)
     # float32 rasters of the daily values: the reference total within float32 rounding
     assert gridded["reference_et_total_mm"] == pytest.approx(etr.sum(), rel=1e-6)
+    # monthly zone totals: each zone's own daily reference ET, here the station's everywhere
+    import csv
+
+    def monthly(folder):
+        with (folder / "zones_monthly.csv").open() as f:
+            return {(r["zone_id"], r["value"]): r for r in csv.DictReader(f)}
+
+    station_months, gridded_months = monthly(season_run), monthly(out)
+    assert gridded_months.keys() == station_months.keys()
+    for key, row in gridded_months.items():
+        for column in ("et_mm", "reference_et_mm"):
+            assert float(row[column]) == pytest.approx(
+                float(station_months[key][column]), rel=1e-6
+            ), key
 
 
 def test_a_daily_stack_that_cannot_serve_gets_one_line(tmp_path):

@@ -134,15 +134,18 @@ def monthly_rows(
     rows: list[dict],
     scene_ids: list[str],
     days: list[dt.date],
-    etr: np.ndarray,
+    etr: np.ndarray | dict[str, np.ndarray],
     fractions: dict[str, dict] | None = None,
 ) -> list[dict]:
     """Per zone the season's ET and reference ET by month and by water year [mm]; with the
     ensemble members' zone fractions (``fractions``, as :func:`zone_fraction_means` gives
-    them), the p10, p50 and p90 of the members' own totals."""
+    them), the p10, p50 and p90 of the members' own totals. ``etr`` is the station's daily
+    reference ET, or each zone's own (gridded: :func:`zone_daily_reference`)."""
     out = []
     zones = sorted({r["zone_id"] for r in rows})
+    station = etr
     for zone in zones:
+        etr = station[zone] if isinstance(station, dict) else station
         mine = sorted(
             (r for r in rows if r["zone_id"] == zone and r["scene_id"] in scene_ids),
             key=lambda r: r["date"],
@@ -176,6 +179,62 @@ def monthly_rows(
                         row[f"et_mm_{suffix}"] = float(value)
                 out.append(row)
     return out
+
+
+def zone_daily_reference(recipe, settings, manifest: dict) -> dict[str, np.ndarray]:
+    """Each zone's daily reference ET [mm d-1] over a gridded season's days: the coverage-and-
+    area weighted mean of each day's raster over the zone, in one chunked pass (the zones'
+    cell coverage found once per block, the days read one at a time)."""
+    import operator
+
+    import rasterio
+    from rasterio import features
+
+    from ..io.engine import BlockLayout, effective_chunk_size, run_blockwise
+    from ..io.grid import Grid
+    from ..recipe import resolve_path
+    from .totals import gridded_reference_et, season_days
+    from .zones import load_zones
+
+    season = next(s for s in recipe.season if s.id == manifest["season_id"])
+    with rasterio.open(manifest["outputs"]["et_season.tif"]) as src:
+        grid = Grid(src.crs, src.transform, src.width, src.height)
+    days = season_days(season.start, season.end)
+    sources = gridded_reference_et(recipe, season, days, grid)
+    ids, _, _, geometries = load_zones(
+        resolve_path(recipe, recipe.zones.path), recipe.zones.id_property, grid.crs
+    )
+    result = run_blockwise(
+        BlockLayout(grid.height, grid.width, effective_chunk_size(settings.chunk_size)),
+        _zone_daily_sums,
+        args=(sources, geometries, [features.bounds(g) for g in geometries], grid),
+        combine=operator.add,  # the blocks' one-item lists, added in row-major order below
+    )
+    sums = np.sum(result.summary, axis=0)  # (days, 2, zones)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        means = sums[:, 0] / sums[:, 1]
+    return {zone: means[:, k] for k, zone in enumerate(ids)}
+
+
+def _zone_daily_sums(sources, geometries, boxes, grid, location) -> list[np.ndarray]:
+    """Per day and zone of one block: the weighted sum of the day's reference ET and the weight
+    (coverage x ground area) of its valid cells."""
+    from ..io.grid import read_window
+    from .zones import block_coverage
+
+    (r0, r1), (c0, c1) = location
+    out = np.zeros((len(sources), 2, len(geometries)))
+    coverage = block_coverage(geometries, boxes, grid, location)
+    if not coverage:
+        return [out]
+    for d, source in enumerate(sources):
+        values = read_window(source, slice(r0, r1), slice(c0, c1))
+        for k, rows, cols, _, weight in coverage:
+            picked = values[rows, cols]
+            ok = np.isfinite(picked)
+            out[d, 0, k] = (weight[ok] * picked[ok]).sum()
+            out[d, 1, k] = weight[ok].sum()
+    return [out]
 
 
 def write_series(out_dir: Path, scene: list[dict], monthly: list[dict]) -> list[Path]:
