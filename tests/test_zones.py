@@ -407,3 +407,27 @@ def test_gdal_places_the_written_zones_geojson_right(tmp_path):
         shapely.from_wkb(geometries[0]), lambda xy: np.column_stack(to_utm.transform(*xy.T))
     )
     assert back.equals_exact(shapely.Polygon(ring), tolerance=1e-3)  # millimetres
+
+
+def test_geopandas_places_the_demo_zones_geojson_right(tmp_path):
+    """GeoPandas reads a run's zones.geojson as EPSG:4326 and, projected back to the grid's
+    UTM zone, each polygon is the zone file's own (to a millimetre)."""
+    import geopandas
+    from click.testing import CliRunner
+
+    from rasterbudget.cli import main
+    from tests.conftest import ROOT
+
+    recipe = ROOT / "workflows" / "demo_season.toml"
+    out = tmp_path / "out"
+    result = CliRunner().invoke(
+        main, ["run", str(recipe), "--out", str(out), "--quiet", "--no-quicklook"]
+    )
+    assert result.exit_code == 0, result.output
+    written = geopandas.read_file(out / "kessendry_summer_2026" / "zones.geojson")
+    assert written.crs.to_epsg() == 4326
+    source = geopandas.read_file(ROOT / "tiny_rasters" / "zones.geojson")
+    assert source.crs.to_epsg() == 32613
+    back = written.to_crs(32613).set_index("zone_id").geometry
+    for zone_id, polygon in source.set_index("zone_id").geometry.items():
+        assert back[zone_id].equals_exact(polygon, tolerance=1e-3), zone_id
