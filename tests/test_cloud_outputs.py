@@ -499,3 +499,94 @@ def test_zarr_is_filled_by_the_same_compute_without_recomputing_blocks(tmp_path,
     pipeline.run_scene(recipe, recipe.scene[0], load_class_table(), settings)
     # 300 x 400 pixels in 128-pixel chunks: 3 x 4 blocks, each computed once for every output
     assert len(calls) == 12 and len(set(calls)) == 12
+
+
+# ----------------------------------------------------------------- read by the ecosystem
+
+
+@pytest.mark.parametrize("scene", SCENES)
+def test_rio_cogeo_validates_every_raster(cloud_run, scene):
+    from rio_cogeo.cogeo import cog_validate
+
+    for tif in _rasters(cloud_run / scene):
+        valid, errors, _ = cog_validate(str(tif))
+        assert valid and errors == [], (tif.name, errors)
+
+
+def test_every_band_has_gdal_units_and_the_qa_band_its_bit_meanings(cloud_run):
+    from rasterbudget.catalog.qa import QA
+    from rasterbudget.catalog.variables import VARIABLES
+
+    for tif in _rasters(cloud_run / SCENE):
+        with rasterio.open(tif) as src:  # rasterio's units are GDAL's band unit type
+            assert src.units == (VARIABLES[tif.stem].units,) * src.count, tif.name
+    with rasterio.open(cloud_run / SCENE / "qa_flags.tif") as src:
+        tags = src.tags(1)
+    for bit in QA:
+        position = int(bit).bit_length() - 1
+        assert tags[f"bit_{position}"].startswith(bit.name.lower() + ": ")
+
+
+def test_xarray_opens_the_zarr_with_integer_flags_and_rioxarray_finds_the_crs(cloud_run):
+    import rioxarray  # noqa: F401  (registers the .rio accessor)
+    import xarray as xr
+
+    data = xr.open_zarr(cloud_run / SCENE / "outputs.zarr")  # xarray's defaults
+    assert data.qa_flags.dtype == np.uint16
+    with rasterio.open(cloud_run / SCENE / "qa_flags.tif") as src:
+        np.testing.assert_array_equal(data.qa_flags.values, src.read(1))
+        crs, transform = src.crs, src.transform
+    assert data.rio.crs == crs and data.et_daily.rio.crs == crs
+    assert data.rio.transform().almost_equals(transform)
+    assert data.qa_flags.attrs["flag_masks"][10] == 1024
+
+
+def test_odc_stac_loads_the_item_pixel_identical(cloud_run):
+    import odc.stac
+    import pystac
+
+    folder = cloud_run / SCENE
+    item = pystac.Item.from_file(str(folder / f"{SCENE}.stac.json"))
+    loaded = odc.stac.load([item], bands=["et_daily", "qa_flags"])
+    with rasterio.open(folder / "et_daily.tif") as src:
+        np.testing.assert_array_equal(loaded.et_daily.isel(time=0).values, src.read(1))
+        assert loaded.odc.geobox.crs.epsg == src.crs.to_epsg()
+    with rasterio.open(folder / "qa_flags.tif") as src:
+        np.testing.assert_array_equal(loaded.qa_flags.isel(time=0).values, src.read(1))
+    raw = json.loads((folder / f"{SCENE}.stac.json").read_text())
+    assert raw["properties"]["proj:epsg"] == 32613  # what stackstac reads
+
+
+def test_drought_categories_carry_a_colour_table_and_gdal_category_names(tmp_path):
+    from rasterio.shutil import copy as gdal_copy
+    from rasterio.transform import from_origin
+
+    from rasterbudget.catalog.variables import DROUGHT_CATEGORIES
+    from rasterbudget.season.compare import run_compare
+
+    rng = np.random.default_rng(3)
+    profile = {
+        "driver": "GTiff",
+        "width": 32,
+        "height": 32,
+        "count": 1,
+        "dtype": "float32",
+        "crs": "EPSG:32613",
+        "transform": from_origin(500000.0, 4400000.0, 30.0, 30.0),
+    }
+    paths = []
+    for k in range(4):
+        paths.append(tmp_path / f"season_{k}.tif")
+        with rasterio.open(paths[-1], "w", **profile) as dst:
+            dst.write(rng.normal(400.0, 40.0, (1, 32, 32)).astype(np.float32))
+    run_compare(paths[0], tmp_path / "cmp", baseline=paths[1:], chunk=64, tile_size=16)
+    category = tmp_path / "cmp" / "drought_category.tif"
+    with rasterio.open(category) as src:
+        table = src.colormap(1)
+    for code, _, colour in DROUGHT_CATEGORIES:
+        assert table[code][:3] == tuple(int(colour[i : i + 2], 16) for i in (1, 3, 5))
+    # GDAL itself reads the category names (from the GeoTIFF's PAM sidecar) into a VRT copy
+    gdal_copy(category, tmp_path / "category.vrt", driver="VRT")
+    vrt = (tmp_path / "category.vrt").read_text()
+    for _, name, _ in DROUGHT_CATEGORIES:
+        assert f"<Category>{name}</Category>" in vrt

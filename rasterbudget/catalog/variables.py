@@ -36,6 +36,22 @@ class Variable:
     histogram: tuple[float, float, float] | None = None
     #: quick-look panel: (matplotlib colour map, fixed (vmin, vmax) or None), or None
     panel: tuple[str, tuple[float, float] | None] | None = None
+    #: category rasters: (code, name, colour #rrggbb) of each category (GeoTIFF colour table
+    #: and GDAL category names)
+    categories: tuple[tuple[int, str, str], ...] | None = None
+
+
+#: Drought categories of standardized anomalies (McKee, Doesken & Kleist 1993 classes), dry
+#: (brown) to wet (blue); 0 = no value.
+DROUGHT_CATEGORIES = (
+    (1, "extremely dry", "#7f3b08"),
+    (2, "severely dry", "#c2661a"),
+    (3, "moderately dry", "#f1b36a"),
+    (4, "near normal", "#e8e8e8"),
+    (5, "moderately wet", "#8ec7e0"),
+    (6, "severely wet", "#3a8fc4"),
+    (7, "extremely wet", "#08407a"),
+)
 
 
 _ROWS = (
@@ -205,6 +221,7 @@ _ROWS = (
         "comparison",
         dtype="uint8",
         nodata=0,
+        categories=DROUGHT_CATEGORIES,
     ),
 )
 

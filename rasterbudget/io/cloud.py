@@ -194,6 +194,9 @@ class AtomicZarr:
             attrs = {
                 "long_name": long_name,
                 "grid_mapping": GRID_MAPPING,
+                # CF: the grid mapping as a coordinate, so xarray (by default) keeps it beside
+                # every variable and rioxarray finds the CRS without decode_coords="all"
+                "coordinates": GRID_MAPPING,
                 "_ARRAY_DIMENSIONS": ["y", "x"],
                 "_CRS": gdal_crs,
             }
@@ -206,7 +209,9 @@ class AtomicZarr:
                 shape=(grid.height, grid.width),
                 dtype=dtype,
                 chunks=(min(chunk, grid.height), min(chunk, grid.width)),
-                fill_value=np.nan if is_float else 0,
+                # the QA mask has no fill value: 0 means "no flag", and a fill value of 0
+                # made xarray mask 95 % of the pixels and turn the flags into floats
+                fill_value=np.nan if is_float else None,
                 attributes=attrs,
             )
         return arrays
@@ -282,6 +287,17 @@ def projection_fields(grid: Grid) -> dict:
     return fields
 
 
+def add_projection(item, grid: Grid) -> None:
+    """The projection extension's fields on an Item: ``proj:code`` (extension v2) and, where
+    the CRS has an EPSG code, also ``proj:epsg`` (v1), which stackstac and older readers use."""
+    from pystac.extensions.projection import ProjectionExtension
+
+    ProjectionExtension.ext(item, add_if_missing=True).apply(**projection_fields(grid))
+    epsg = grid.crs.to_epsg()
+    if epsg is not None:
+        item.properties["proj:epsg"] = int(epsg)
+
+
 def raster_asset(
     name: str, href: str, units: str, description: str, dtype: str, nodata, cog: bool
 ) -> tuple[str, dict]:
@@ -318,7 +334,6 @@ def stac_item(
     overview or data assets (see :data:`AUXILIARY_ASSETS`).
     """
     import pystac
-    from pystac.extensions.projection import ProjectionExtension
 
     bbox, geometry = footprint_lonlat(grid)
     item = pystac.Item(
@@ -331,7 +346,7 @@ def stac_item(
             "created": created.astimezone(dt.UTC).isoformat().replace("+00:00", "Z"),
         },
     )
-    ProjectionExtension.ext(item, add_if_missing=True).apply(**projection_fields(grid))
+    add_projection(item, grid)
     for stem, (units, description, dtype, nodata) in rasters.items():
         key, fields = raster_asset(stem, f"./{stem}.tif", units, description, dtype, nodata, cog)
         item.add_asset(key, _asset(pystac, fields))

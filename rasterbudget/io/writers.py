@@ -15,7 +15,7 @@ import numpy as np
 import rasterio
 from rasterio.windows import Window
 
-from ..catalog.variables import VARIABLES
+from ..catalog.variables import QA_OUTPUT, VARIABLES
 from .grid import Grid
 
 PARTIAL_SUFFIX = ".partial"
@@ -118,6 +118,15 @@ class AtomicRaster:
         data type, nodata, units and description (``fill`` completes their placeholders)."""
         v = VARIABLES[name]
         fill = fill or {}
+        if name == QA_OUTPUT:  # each bit's meaning in the band's metadata
+            from ..catalog.qa import QA, QA_DESCRIPTIONS
+
+            meanings = {bit: f"{bit.name.lower()}: {QA_DESCRIPTIONS[bit]}" for bit in QA}
+            options["band_tags"] = {
+                1: {f"bit_{int(bit).bit_length() - 1}": text for bit, text in meanings.items()}
+            }
+        if v.categories:
+            options["categories"] = v.categories
         return cls(
             Path(out_dir) / f"{name}.tif",
             grid,
@@ -146,6 +155,8 @@ class AtomicRaster:
         cog: bool = False,
         compression: str = "zstd",
         bands: tuple[str, ...] | None = None,
+        band_tags: dict[int, dict[str, str]] | None = None,
+        categories: tuple[tuple[int, str, str], ...] | None = None,
     ) -> None:
         self.path = Path(path)
         self.partial = self.path.with_name(self.path.name + PARTIAL_SUFFIX)
@@ -177,7 +188,10 @@ class AtomicRaster:
             "units": units,
             "description": description,
             "tags": tags or {},
+            "band_tags": band_tags or {},
+            "colormap": colour_table(categories) if categories else None,
         }
+        self.categories = categories
         from .cluster import distributed_client
 
         client = distributed_client()
@@ -238,8 +252,24 @@ class AtomicRaster:
         if self._ready is None:
             self.finish()
         os.replace(self._ready, self.path)
+        if self.categories:  # GDAL keeps a GeoTIFF's category names in its .aux.xml (PAM)
+            write_text_atomic(self.path.with_name(self.path.name + ".aux.xml"), self._pam())
         self.committed = True
         return self.path
+
+    def _pam(self) -> str:
+        """GDAL's PAM sidecar with the band's category names (index = code; 0 = no value)."""
+        from xml.sax.saxutils import escape
+
+        names = {code: name for code, name, _ in self.categories}
+        entries = "".join(
+            f"<Category>{escape(names.get(code, 'no value' if code == 0 else ''))}</Category>"
+            for code in range(max(names) + 1)
+        )
+        return (
+            f'<PAMDataset><PAMRasterBand band="1"><CategoryNames>{entries}</CategoryNames>'
+            "</PAMRasterBand></PAMDataset>\n"
+        )
 
     def abort(self) -> None:
         # under the lock: after a failed block dask's other threads may still be writing, and
@@ -256,12 +286,26 @@ class AtomicRaster:
         self.cog_partial.unlink(missing_ok=True)
 
 
+def colour_table(categories: tuple[tuple[int, str, str], ...]) -> dict[int, tuple]:
+    """A GeoTIFF colour table of categories' #rrggbb colours (code 0: transparent)."""
+    table = {0: (0, 0, 0, 0)}
+    for code, _, colour in categories:
+        table[code] = (*(int(colour[k : k + 2], 16) for k in (1, 3, 5)), 255)
+    return table
+
+
 def _create(path: Path | str, profile: dict, band: dict):
     """Create a GeoTIFF open for writing, with its band names, units and tags."""
     dataset = rasterio.open(path, "w", **profile)
     for index, name in enumerate(band["names"], start=1):
         dataset.set_band_description(index, name)
         dataset.update_tags(index, units=band["units"], long_name=band["description"])
+    # GDAL's own unit type of each band (gdalinfo "Unit Type", rasterio ``units``)
+    dataset.units = [band["units"]] * len(band["names"])
+    for index, tags in band.get("band_tags", {}).items():
+        dataset.update_tags(index, **tags)
+    if band.get("colormap"):
+        dataset.write_colormap(1, band["colormap"])
     if band["tags"]:
         dataset.update_tags(**{k: str(v) for k, v in band["tags"].items()})
     return dataset

@@ -15,21 +15,14 @@ from pathlib import Path
 
 import numpy as np
 
+from ..catalog.variables import DROUGHT_CATEGORIES
 from ..errors import InputRasterError
 from ..io.paths import output_folder
 from ..methods.ensemble import member_percentiles, member_spread
 from ..scene.manifest import sha256_of, versions
 
 #: Category code -> name (codes of the drought_category raster; 0 = no value).
-CATEGORIES = {
-    1: "extremely dry",
-    2: "severely dry",
-    3: "moderately dry",
-    4: "near normal",
-    5: "moderately wet",
-    6: "severely wet",
-    7: "extremely wet",
-}
+CATEGORIES = {code: name for code, name, _ in DROUGHT_CATEGORIES}
 
 
 def difference(current: np.ndarray, previous: np.ndarray) -> np.ndarray:
