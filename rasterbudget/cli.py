@@ -78,12 +78,11 @@ def _fail(err: Exception, debug: bool) -> None:
 
 def _recipe_and_classes(path: Path):
     """The validated recipe and the class table it names."""
-    from .catalog.classes import load_class_table
-    from .recipe import load_recipe, resolve_path
+    from .recipe import load_recipe
+    from .workflow import recipe_class_table
 
     parsed = load_recipe(path)
-    name = parsed.run.class_table
-    return parsed, load_class_table(None if name == "builtin" else resolve_path(parsed, name))
+    return parsed, recipe_class_table(parsed)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -187,24 +186,19 @@ def _run(
     force: bool,
 ) -> None:
     """The run command's work (inside the chosen dask scheduler)."""
-    from .recipe import resolve_path
-    from .scene.run import RunOptions
+    from .methods import get_method
+    from .workflow import run_options, run_recipe
 
     parsed, table = _recipe_and_classes(recipe)
-    settings = RunOptions(
-        out_dir=out_dir if out_dir is not None else resolve_path(parsed, parsed.run.out),
-        chunk_size=chunk_size or parsed.run.chunk_size,
-        tile_size=tile_size or parsed.run.tile_size,
-        write_components=parsed.run.write_components if components is None else components,
-        quicklook=parsed.run.quicklook and not no_quicklook,
+    settings = run_options(
+        parsed,
+        out_dir,
+        chunk_size,
+        tile_size,
+        components,
+        quicklook=not no_quicklook,
         progress=not quiet and sys.stderr.isatty(),
-        cog=parsed.run.cog,
-        stac=parsed.run.stac,
-        zarr=parsed.run.zarr,
-        compression=parsed.run.compression,
     )
-    from .methods import get_method
-    from .workflow import run_recipe
 
     def scene_line(outcome) -> None:
         if quiet and outcome.status != "failed":

@@ -217,6 +217,42 @@ class RecipeOutcome:
     report: Path | None = None
 
 
+def recipe_class_table(recipe: Recipe) -> ClassTable:
+    """The class table a recipe names (``run.class_table``; the built-in one by default)."""
+    from .catalog.classes import load_class_table
+    from .recipe import resolve_path
+
+    name = recipe.run.class_table
+    return load_class_table(None if name == "builtin" else resolve_path(recipe, name))
+
+
+def run_options(
+    recipe: Recipe,
+    out_dir: Path | str | None = None,
+    chunk_size: int | None = None,
+    tile_size: int | None = None,
+    components: bool | None = None,
+    quicklook: bool = True,
+    progress: bool = False,
+) -> RunOptions:
+    """A recipe's ``[run]`` table with the caller's choices (command-line options, API
+    arguments) applied over it; paths relative to the recipe file."""
+    from .recipe import resolve_path
+
+    return RunOptions(
+        out_dir=Path(out_dir) if out_dir is not None else resolve_path(recipe, recipe.run.out),
+        chunk_size=chunk_size or recipe.run.chunk_size,
+        tile_size=tile_size or recipe.run.tile_size,
+        write_components=recipe.run.write_components if components is None else components,
+        quicklook=recipe.run.quicklook and quicklook,
+        progress=progress,
+        cog=recipe.run.cog,
+        stac=recipe.run.stac,
+        zarr=recipe.run.zarr,
+        compression=recipe.run.compression,
+    )
+
+
 def run_recipe(
     recipe: Recipe,
     table: ClassTable,
