@@ -307,6 +307,9 @@ def _run_recipe_locked(
         zone_targets += [(s.id, "et_season") for s in recipe.season if s.id in made]
         done.zone_tables = run_zones(recipe, settings, zone_targets)
         done.zone_tables += _zone_series(recipe, settings, outcomes, done.seasons)
+    if settings.stac:
+        with _writing("the STAC collection", settings.out_dir):
+            write_run_collection(settings.out_dir, outcomes, done.seasons)
     if settings.quicklook:
         from .report import write_report
 
@@ -317,6 +320,34 @@ def _run_recipe_locked(
                 [m["season_id"] for m in done.seasons],
             )
     return done
+
+
+COLLECTION = "collection.json"
+
+
+def write_run_collection(out_dir: Path, outcomes, seasons: list[dict]) -> Path | None:
+    """``OUT/collection.json``: a STAC Collection linking the Items of the run's complete
+    scenes and seasons (relative hrefs), its extent spanning theirs."""
+    names = [o.scene_id for o in outcomes if o.status != "failed"]
+    names += [m["season_id"] for m in seasons]
+    return write_collection(out_dir, [(name, out_dir / name) for name in names])
+
+
+def write_collection(out_dir: Path, folders: list[tuple[str, Path]]) -> Path | None:
+    """``OUT/collection.json`` linking the STAC Item ``<folder>/<name>.stac.json`` of each
+    (name, folder) that has one."""
+    from .io.cloud import stac_collection
+
+    items = []
+    for name, folder in folders:
+        path = folder / f"{name}.stac.json"
+        if path.is_file():
+            href = f"./{path.relative_to(out_dir).as_posix()}"
+            items.append((href, json.loads(path.read_text())))
+    if not items:
+        return None
+    collection = stac_collection(out_dir.resolve().name, items, dt.datetime.now(dt.UTC))
+    return write_text_atomic(out_dir / COLLECTION, json.dumps(collection, indent=2) + "\n")
 
 
 def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[Path, dict]]:
@@ -351,6 +382,7 @@ def run_compare_recipe(recipe, out_override: Path | None = None) -> list[tuple[P
             )
             results.append((folder, summary))
         write_compare_report(out, results)
+        write_collection(out, [(c.id, output_folder(out, c.id)) for c in recipe.comparison])
     return results
 
 

@@ -136,7 +136,7 @@ def test_failed_cog_conversion_leaves_nothing_under_a_final_name(tmp_path, monke
 # ----------------------------------------------------------------------------- STAC
 
 
-def _core_schema_errors(item: dict) -> list[str]:
+def _core_schema_errors(item: dict, kind: str = "item") -> list[str]:
     """Errors of the Item against STAC's core Item schema bundled with pystac (no network)."""
     from jsonschema import Draft7Validator
     from pystac.validation.local_validator import get_local_schema_cache
@@ -148,7 +148,7 @@ def _core_schema_errors(item: dict) -> list[str]:
         (uri, Resource(contents=schema, specification=DRAFT7)) for uri, schema in cache.items()
     )
     schema = cache[
-        f"https://schemas.stacspec.org/v{item['stac_version']}/item-spec/json-schema/item.json"
+        f"https://schemas.stacspec.org/v{item['stac_version']}/{kind}-spec/json-schema/{kind}.json"
     ]
     validator = Draft7Validator(schema, registry=registry)
     return [e.message for e in validator.iter_errors(item)]
@@ -590,3 +590,39 @@ def test_drought_categories_carry_a_colour_table_and_gdal_category_names(tmp_pat
     vrt = (tmp_path / "category.vrt").read_text()
     for _, name, _ in DROUGHT_CATEGORIES:
         assert f"<Category>{name}</Category>" in vrt
+
+
+def test_a_run_has_a_collection_of_its_scene_and_season_items_that_readers_load(tmp_path):
+    import odc.stac
+    import pystac
+
+    from rasterbudget.season.compare import run_compare
+    from tests.conftest import ROOT
+
+    out = tmp_path / "out"
+    recipe = ROOT / "workflows" / "demo_season.toml"
+    result = CliRunner().invoke(main, ["run", str(recipe), "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output
+    raw = json.loads((out / "collection.json").read_text())
+    assert _core_schema_errors(raw, "collection") == []
+    collection = pystac.Collection.from_file(str(out / "collection.json"))
+    items = {item.id: item for item in collection.get_items()}
+    season_id = "kessendry_summer_2026"
+    assert set(items) == {*SCENES, season_id}
+    interval = collection.extent.temporal.intervals[0]
+    assert interval[0] == dt.datetime(2026, 6, 1, tzinfo=dt.UTC)
+    assert interval[1] == dt.datetime(2026, 8, 31, 23, 59, 59, tzinfo=dt.UTC)
+    season_item = json.loads((out / season_id / f"{season_id}.stac.json").read_text())
+    assert _core_schema_errors(season_item) == []
+    assert season_item["properties"]["datetime"] is None
+    assert season_item["properties"]["start_datetime"] == "2026-06-01T00:00:00Z"
+    loaded = odc.stac.load([items[season_id]], bands=["et_season"])
+    with rasterio.open(out / season_id / "et_season.tif") as src:
+        np.testing.assert_array_equal(loaded.et_season.isel(time=0).values, src.read(1))
+    # a comparison has its Item too, over the compared season's days
+    current = out / season_id / "et_season.tif"
+    run_compare(current, tmp_path / "cmp", current, chunk=64, tile_size=50, label="same")
+    compared = json.loads((tmp_path / "cmp" / "same.stac.json").read_text())
+    assert _core_schema_errors(compared) == []
+    assert compared["properties"]["end_datetime"] == "2026-08-31T23:59:59Z"
+    assert {"difference", "percent_change", "summary"} <= set(compared["assets"])

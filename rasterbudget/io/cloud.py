@@ -256,6 +256,14 @@ AUXILIARY_ASSETS: dict[str, tuple[str, str, list[str], str]] = {
         "summary tiles with their statistics",
     ),
     "classes.csv": ("classes_table", "text/csv", ["metadata"], "statistics per land-cover class"),
+    "compare.json": (
+        "summary",
+        "application/json",
+        ["metadata"],
+        "what was compared, inputs' checksums, category shares, zones, uncertainty",
+    ),
+    "categories.csv": ("categories_table", "text/csv", ["metadata"], "area per category"),
+    "zones.csv": ("zones_table", "text/csv", ["metadata"], "per-zone means and volumes"),
     "quicklook.png": ("quicklook", "image/png", ["overview"], "quick-look maps"),
     "edges.png": ("edges_plot", "image/png", ["metadata"], "surface temperature against albedo"),
     ZARR_NAME: (
@@ -320,31 +328,40 @@ def raster_asset(
 
 def stac_item(
     scene_id: str,
-    acquired_utc: dt.datetime,
+    acquired_utc: dt.datetime | None,
     grid: Grid,
     rasters: dict[str, tuple[str, str, str, float | int]],
     files: list[str],
     cog: bool,
     created: dt.datetime,
+    period: tuple[dt.datetime, dt.datetime] | None = None,
+    title: str | None = None,
 ) -> dict:
-    """The scene's STAC Item as a dict (pystac builds it; hrefs relative to the scene folder).
+    """A scene's (or, with ``period`` instead of a time, a season's or comparison's) STAC Item
+    as a dict (pystac builds it; hrefs relative to its folder).
 
     ``rasters``: output stem -> (units, description, dtype, nodata), one asset each at
-    ``./<stem>.tif``; ``files``: the other file names of the scene folder that become metadata,
+    ``./<stem>.tif``; ``files``: the other file names of the folder that become metadata,
     overview or data assets (see :data:`AUXILIARY_ASSETS`).
     """
     import pystac
 
     bbox, geometry = footprint_lonlat(grid)
+    properties = {
+        "title": title or f"{scene_id}: surface energy balance and evapotranspiration",
+        "created": _stac_time(created),
+    }
+    if period is not None:  # a span of time: datetime null, start and end given
+        properties |= {
+            "start_datetime": _stac_time(period[0]),
+            "end_datetime": _stac_time(period[1]),
+        }
     item = pystac.Item(
         id=scene_id,
         geometry=geometry,
         bbox=bbox,
-        datetime=acquired_utc.astimezone(dt.UTC),
-        properties={
-            "title": f"{scene_id}: surface energy balance and evapotranspiration",
-            "created": created.astimezone(dt.UTC).isoformat().replace("+00:00", "Z"),
-        },
+        datetime=None if acquired_utc is None else acquired_utc.astimezone(dt.UTC),
+        properties=properties,
     )
     add_projection(item, grid)
     for stem, (units, description, dtype, nodata) in rasters.items():
@@ -357,6 +374,50 @@ def stac_item(
         fields = {"href": f"./{name}", "type": media_type, "roles": roles, "title": title}
         item.add_asset(key, _asset(pystac, fields))
     return item.to_dict(include_self_link=False, transform_hrefs=False)
+
+
+def _stac_time(when: dt.datetime) -> str:
+    return when.astimezone(dt.UTC).isoformat().replace("+00:00", "Z")
+
+
+def stac_collection(collection_id: str, items: list[tuple[str, dict]], created: dt.datetime):
+    """A STAC Collection of a run's Items (``items``: relative href and Item dict of each):
+    its extent spans theirs; one ``item`` link each."""
+    import pystac
+
+    boxes = np.array([item["bbox"] for _, item in items], dtype=float)
+    times = []
+    for _, item in items:
+        p = item["properties"]
+        for key in ("datetime", "start_datetime", "end_datetime"):
+            if p.get(key):
+                times.append(dt.datetime.fromisoformat(p[key].replace("Z", "+00:00")))
+    collection = pystac.Collection(
+        id=collection_id,
+        description=(
+            f"rasterbudget outputs of {collection_id}: per-scene surface energy balance and ET, "
+            "season totals and comparisons. Estimates with uncertainty; they do not replace "
+            "local regulations or licensed professional judgement."
+        ),
+        extent=pystac.Extent(
+            pystac.SpatialExtent(
+                [[*boxes[:, :2].min(axis=0).tolist(), *boxes[:, 2:].max(axis=0).tolist()]]
+            ),
+            pystac.TemporalExtent([[min(times), max(times)]]),
+        ),
+        license="other",
+        extra_fields={"created": _stac_time(created)},
+    )
+    for href, item in items:
+        collection.add_link(
+            pystac.Link(
+                "item",
+                href,
+                media_type="application/geo+json",
+                title=item["properties"].get("title"),
+            )
+        )
+    return collection.to_dict(include_self_link=False, transform_hrefs=False)
 
 
 def _asset(pystac, fields: dict):

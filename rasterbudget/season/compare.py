@@ -247,6 +247,43 @@ def _uncertainty(members: tuple | str, member_means: list) -> dict:
     }
 
 
+def compare_stac_item(summary: dict, current: Path, out_dir: Path, grid, writers) -> Path:
+    """The comparison's STAC Item: its rasters and tables, over the current raster's period
+    (a season's start to end, from the manifest beside it) or at its scene's overpass."""
+    import datetime as dt
+
+    from ..io.cloud import stac_item, write_stac_item
+
+    label = summary["comparison"]
+    when, period = dt.datetime.now(dt.UTC), None
+    try:
+        manifest = json.loads((Path(current).parent / "manifest.json").read_text())
+    except (OSError, ValueError):
+        manifest = {}
+    if "start" in manifest and "end" in manifest:
+        start = dt.datetime.fromisoformat(str(manifest["start"])).replace(tzinfo=dt.UTC)
+        end = dt.datetime.fromisoformat(str(manifest["end"])).replace(tzinfo=dt.UTC)
+        when, period = None, (start, end + dt.timedelta(hours=23, minutes=59, seconds=59))
+    elif "parameters" in manifest and "acquired_utc" in manifest["parameters"]:
+        when = dt.datetime.fromisoformat(manifest["parameters"]["acquired_utc"])
+    # compare.json is written right after the Item
+    files = ["compare.json"] + [
+        n for n in ("categories.csv", "zones.csv") if (out_dir / n).exists()
+    ]
+    item = stac_item(
+        label,
+        when,
+        grid,
+        {w.path.stem: (w.units, w.description, w.dtype, w.nodata) for w in writers},
+        files,
+        False,
+        dt.datetime.now(dt.UTC),
+        period=period,
+        title=f"{label}: comparison of {summary['variable']}",
+    )
+    return write_stac_item(item, out_dir / f"{label}.stac.json")
+
+
 def member_name(k: int) -> str:
     return f"difference_member_{k + 1:02d}"
 
@@ -513,5 +550,6 @@ def run_compare(
     _write_tables(
         summary, out_dir, grid, result, names, summarised, tile_size, zone_tables, zone_names
     )
+    summary["outputs"].append(compare_stac_item(summary, current, out_dir, grid, writers).name)
     write_text_atomic(out_dir / "compare.json", json.dumps(_json_ready(summary), indent=2) + "\n")
     return summary

@@ -540,6 +540,8 @@ def run_season(recipe, season, settings) -> dict:
         )
     mean_total, mean_reference, *member_means = result.reductions
     outputs = {w.path.name: str(w.path) for w in writers}
+    if settings.stac:
+        outputs[f"{season.id}.stac.json"] = str(season_stac_item(season, grid, writers, out_dir))
     content = {
         "season_id": season.id,
         "status": "complete",
@@ -572,6 +574,26 @@ def run_season(recipe, season, settings) -> dict:
     }
     write_season_manifest(out_dir / "manifest.json", content)
     return content
+
+
+def season_stac_item(season, grid, writers: list, out_dir: Path) -> Path:
+    """The season's STAC Item: its rasters and manifest, over its days (start to end)."""
+    from ..io.cloud import stac_item, write_stac_item
+
+    start = dt.datetime.combine(season.start, dt.time(0, 0), tzinfo=dt.UTC)
+    end = dt.datetime.combine(season.end, dt.time(23, 59, 59), tzinfo=dt.UTC)
+    item = stac_item(
+        season.id,
+        None,
+        grid,
+        {w.path.stem: (w.units, w.description, w.dtype, w.nodata) for w in writers},
+        ["manifest.json"],
+        False,
+        dt.datetime.now(dt.UTC),
+        period=(start, end),
+        title=f"{season.id}: season ET {season.start} to {season.end}",
+    )
+    return write_stac_item(item, out_dir / f"{season.id}.stac.json")
 
 
 def season_uncertainty(members: SeasonMembers | str, member_means: list) -> dict:
