@@ -16,14 +16,70 @@ debug_option = click.option(
 )
 
 
+quiet_option = click.option(
+    "--quiet", "-q", is_flag=True, help="No progress bars and no report lines; errors only."
+)
+verbose_option = click.option(
+    "--verbose",
+    "-v",
+    count=True,
+    help="Log what each step does and how long it takes (-vv: more detail).",
+)
+threads_option = click.option(
+    "--threads",
+    type=click.IntRange(1, 1024),
+    help="At most this many threads for the blocks (default: one per core).",
+)
+
+#: Set by the running command: report lines are printed unless --quiet.
+QUIET = {"on": False}
+
+
+def say(message: str, err: bool = False) -> None:
+    """One line of the command's report (not with --quiet), printed so that a progress bar on
+    the terminal is cleared first and redrawn after it: lines and bars never interleave."""
+    if QUIET["on"]:
+        return
+    from tqdm import tqdm
+
+    with tqdm.external_write_mode(file=sys.stderr):
+        click.echo(message, err=err)
+
+
+def _configure_logging(verbose: int, quiet: bool) -> None:
+    import logging
+
+    level = (
+        logging.WARNING
+        if quiet or not verbose
+        else (logging.INFO, logging.DEBUG)[min(verbose, 2) - 1]
+    )
+    logging.basicConfig(format="%(asctime)s %(name)s: %(message)s", datefmt="%H:%M:%S")
+    logging.getLogger("rasterbudget").setLevel(level)
+
+
 def command(func):
-    """A subcommand of ``main`` with the shared ``--debug`` option; a RasterBudgetError becomes
-    one line on standard error and exit status 2."""
+    """A subcommand of ``main`` with the options every command shares (``--debug``, ``--quiet``,
+    ``--verbose``, ``--threads``, defined here once); a RasterBudgetError becomes one line on
+    standard error and exit status 2."""
+    import contextlib
+    import inspect as signature_of
+
+    wants_quiet = "quiet" in signature_of.signature(func).parameters
 
     @functools.wraps(func)
-    def wrapper(*args, debug: bool, **kwargs):
+    def wrapper(*args, debug: bool, quiet: bool, verbose: int, threads: int | None, **kwargs):
+        QUIET["on"] = quiet
+        _configure_logging(verbose, quiet)
+        if wants_quiet:
+            kwargs["quiet"] = quiet
+        cap = contextlib.nullcontext()
+        if threads is not None:  # dask's local threaded scheduler (a cluster has its own)
+            import dask
+
+            cap = dask.config.set(num_workers=threads)
         try:
-            with warnings.catch_warnings():
+            with warnings.catch_warnings(), cap:
                 if not debug:  # numpy's "mean of empty slice" and the like are not messages
                     warnings.simplefilter("ignore", RuntimeWarning)
                 return func(*args, **kwargs)
@@ -39,7 +95,9 @@ def command(func):
             )
             sys.exit(EXIT_INTERRUPTED)
 
-    return main.command()(debug_option(wrapper))
+    for option in (threads_option, verbose_option, quiet_option, debug_option):
+        wrapper = option(wrapper)
+    return main.command()(wrapper)
 
 
 def chunk_size_option(default: int | None, help: str):
@@ -67,6 +125,24 @@ def tile_size_option(default: int | None, help: str):
 #: Exit statuses (README, "Exit status"): all done; some scenes of a batch failed; refused (the
 #: recipe, an input, the output folder, or the one scene of a recipe); interrupted (128 + SIGINT).
 EXIT_DONE, EXIT_SOME_FAILED, EXIT_REFUSED, EXIT_INTERRUPTED = 0, 1, 2, 130
+
+
+def chosen_scenes(recipe, patterns: tuple[str, ...]) -> set[str]:
+    """The ids of the recipe's scenes that match any of ``patterns`` (shell patterns); each
+    pattern must match at least one."""
+    import fnmatch
+
+    ids = [s.id for s in recipe.scene]
+    chosen = set()
+    for pattern in patterns:
+        matched = fnmatch.filter(ids, pattern)
+        if not matched:
+            shown = ", ".join(ids[:6]) + (" ..." if len(ids) > 6 else "")
+            raise RasterBudgetError(
+                f"--scene {pattern!r} matches no scene of the recipe (its scenes: {shown})."
+            )
+        chosen.update(matched)
+    return chosen
 
 
 def _fail(err: Exception, debug: bool) -> None:
@@ -120,7 +196,14 @@ def main() -> None:
     help="Also write shortwave_in, longwave_in, longwave_out, net_radiation_daily.",
 )
 @click.option("--no-quicklook", is_flag=True, help="Skip the quick-look PNG.")
-@click.option("--quiet", "-q", is_flag=True, help="No progress bars; errors only.")
+@click.option(
+    "--scene",
+    "scene_patterns",
+    multiple=True,
+    metavar="ID",
+    help="Run only the scenes with this id (repeat; shell patterns such as 'basin_2025*' "
+    "work). Seasons then use the other scenes' complete outputs, or fail alone.",
+)
 @click.option(
     "--force",
     is_flag=True,
@@ -143,10 +226,11 @@ def run(
     tile_size: int | None,
     components: bool | None,
     no_quicklook: bool,
-    quiet: bool,
+    scene_patterns: tuple[str, ...],
     force: bool,
     scheduler: str | None,
     workers: int | None,
+    quiet: bool,
 ) -> None:
     """Run every scene of RECIPE and write its outputs to OUT/<scene id>/.
 
@@ -172,7 +256,17 @@ def run(
 
         cluster = dask_cluster(scheduler, workers)
     with cluster:
-        _run(recipe, out_dir, chunk_size, tile_size, components, no_quicklook, quiet, force)
+        _run(
+            recipe,
+            out_dir,
+            chunk_size,
+            tile_size,
+            components,
+            no_quicklook,
+            quiet,
+            force,
+            scene_patterns,
+        )
 
 
 def _run(
@@ -184,12 +278,14 @@ def _run(
     no_quicklook: bool,
     quiet: bool,
     force: bool,
+    scene_patterns: tuple[str, ...] = (),
 ) -> None:
     """The run command's work (inside the chosen dask scheduler)."""
     from .methods import get_method
     from .workflow import run_options, run_recipe
 
     parsed, table = _recipe_and_classes(recipe)
+    only = chosen_scenes(parsed, scene_patterns) if scene_patterns else None
     settings = run_options(
         parsed,
         out_dir,
@@ -205,19 +301,21 @@ def _run(
             return
         if outcome.status == "failed":
             if len(parsed.scene) > 1:  # a single scene's error is the one final line
-                click.echo(f"{outcome.scene_id}: FAILED: {outcome.message}", err=True)
+                QUIET["on"] = False  # a failure is always said
+                say(f"{outcome.scene_id}: FAILED: {outcome.message}", err=True)
+                QUIET["on"] = quiet
             return
         m = outcome.manifest
         how = get_method(m["sensible_heat_method"]).summary(m)
         verb = "done" if outcome.status == "done" else "skipped (complete, up to date)"
-        click.echo(
+        say(
             f"{outcome.scene_id}: {verb} in {outcome.seconds:.1f} s -> "
             f"{settings.out_dir / outcome.scene_id}  ({how})"
         )
 
     def season_line(done: dict) -> None:
         if not quiet:
-            click.echo(
+            say(
                 f"{done['season_id']}: season {done['start']} to {done['end']} from "
                 f"{len(done['scenes'])} scenes, mean {done['mean_et_season_mm']:.0f} mm "
                 f"(reference ET {done['reference_et_total_mm']:.0f} mm) -> "
@@ -235,15 +333,16 @@ def _run(
         season_line,
         force=force,
         on_season_failed=season_failed,
+        only=only,
     )
     failed = [o for o in done.scenes if o.status == "failed"]
     if len(done.scenes) == 1 and failed and not parsed.season:  # its reason is the one line
         raise RasterBudgetError(failed[0].message)
     if not quiet:
         for path in done.zone_tables:
-            click.echo(f"zones: {path}")
+            say(f"zones: {path}")
         if done.report is not None:
-            click.echo(f"report: {done.report}")
+            say(f"report: {done.report}")
     if failed or done.failed_seasons:
         parts = [f"{len(failed)} of {len(done.scenes)} scenes failed"] if failed else []
         if done.failed_seasons:
@@ -337,9 +436,9 @@ def compare(
         results = [(out_dir, summary)]
     for folder, summary in results:
         wrote = ", ".join(summary["outputs"])
-        click.echo(f"{summary['comparison']}: wrote {wrote} to {folder}")
+        say(f"{summary['comparison']}: wrote {wrote} to {folder}")
         for row in summary.get("categories", []):
-            click.echo(f"  {row['category']:15s} {row['share_of_valid_area']:7.1%}")
+            say(f"  {row['category']:15s} {row['share_of_valid_area']:7.1%}")
 
 
 @command
@@ -363,7 +462,7 @@ def inspect(recipe: Path, chunk_size: int | None) -> None:
     parsed, table = _recipe_and_classes(recipe)
     lines, problems = inspect_recipe(recipe, table, parsed, chunk_size or parsed.run.chunk_size)
     for line in lines:
-        click.echo(line)
+        say(line)
     if len(problems) == 1:  # the run's own message, as the run would print it
         raise RasterBudgetError(problems[0][1])
     if problems:
@@ -407,7 +506,7 @@ def demo(out_dir: Path) -> None:
     files += make_season_series(out_dir)
     files += [make_daily_weather(out_dir, year) for year in SERIES_YEARS]
     files.append(make_zones(out_dir))
-    click.echo(f"wrote {len(files)} files to {out_dir}")
+    say(f"wrote {len(files)} files to {out_dir}")
 
 
 @command

@@ -115,19 +115,24 @@ class SceneOutcome:
 
 
 def run_batch(
-    recipe: Recipe, table: ClassTable, settings: RunOptions, report=None, force: bool = False
+    recipe: Recipe,
+    table: ClassTable,
+    settings: RunOptions,
+    report=None,
+    force: bool = False,
+    only: set[str] | None = None,
 ) -> list[SceneOutcome]:
-    """Run every scene; a failing scene is reported and the others go on.
+    """Run every scene (or those whose ids are in ``only``); a failing scene is reported and
+    the others go on.
 
     ``report(outcome)`` is called after each scene (the CLI prints a line). Writes
-    ``OUT/batch.csv`` (atomically) with one row per scene.
+    ``OUT/batch.csv`` (atomically) with one row per scene run.
     """
     from tqdm import tqdm
 
     outcomes = []
-    scenes = tqdm(
-        recipe.scene, desc="scenes", unit="scene", disable=not settings.progress, leave=False
-    )
+    chosen = [s for s in recipe.scene if only is None or s.id in only]
+    scenes = tqdm(chosen, desc="scenes", unit="scene", disable=not settings.progress, leave=False)
     for scene in scenes:
         started = time.perf_counter()
         out_dir = settings.out_dir / scene.id
@@ -261,8 +266,10 @@ def run_recipe(
     on_season=None,
     force: bool = False,
     on_season_failed=None,
+    only: set[str] | None = None,
 ) -> RecipeOutcome:
-    """Every scene (a batch), then the recipe's seasons, zones and report.
+    """Every scene (a batch; with ``only``, the scenes of those ids), then the recipe's seasons,
+    zones and report.
 
     ``on_scene(outcome)`` and ``on_season(manifest)`` are called as each finishes (the CLI prints
     a line).
@@ -277,14 +284,14 @@ def run_recipe(
     output_folder(settings.out_dir)
     with output_lock(settings.out_dir):  # one run per output folder
         return _run_recipe_locked(
-            recipe, table, settings, on_scene, on_season, force, on_season_failed
+            recipe, table, settings, on_scene, on_season, force, on_season_failed, only
         )
 
 
 def _run_recipe_locked(
-    recipe, table, settings, on_scene, on_season, force, on_season_failed
+    recipe, table, settings, on_scene, on_season, force, on_season_failed, only=None
 ) -> RecipeOutcome:
-    outcomes = run_batch(recipe, table, settings, on_scene, force=force)
+    outcomes = run_batch(recipe, table, settings, on_scene, force=force, only=only)
     done = RecipeOutcome(outcomes)
     zone_targets = [(o.scene_id, "et_daily") for o in outcomes if o.status != "failed"]
     if recipe.season:

@@ -106,7 +106,7 @@ def scene_constants(scene: Scene, grid: Grid) -> tuple[SceneConstants, dict]:
         where = "below the horizon" if elevation_deg <= 0 else f"only {elevation_deg:.1f}° high"
         raise SunBelowHorizonError(
             f"scene {scene.id}: at {t.isoformat()} the sun is {where} over the scene centre "
-            f"({lat:.3f}° N, {lon:.3f}° E; elevation {elevation_deg:.1f}°, limit {limit}°); "
+            f"({format_lonlat(lon, lat)}; elevation {elevation_deg:.1f}°, limit {limit}°); "
             "check acquired_utc is in UTC, or lower radiation.min_sun_elevation_deg."
         )
     ow, dw = scene.overpass, scene.daily
@@ -300,3 +300,8 @@ def station_reference_et(
         "reference_et_daily": daily,
         "grass_reference_et_hourly": grass_hourly,
     }
+
+
+def format_lonlat(lon: float, lat: float) -> str:
+    """A place as people write it: ``40.028° N, 105.164° W`` (hemisphere letters, no signs)."""
+    return f"{abs(lat):.3f}° {'N' if lat >= 0 else 'S'}, {abs(lon):.3f}° {'E' if lon >= 0 else 'W'}"

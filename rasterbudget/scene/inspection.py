@@ -38,7 +38,7 @@ from .blocks import (
     mask_pixels,
     remap_codes,
 )
-from .constants import scene_constants, with_weather_at_centre
+from .constants import format_lonlat, scene_constants, with_weather_at_centre
 from .geometry import pixel_lonlat
 from .inputs import input_paths, mask_rule
 from .preflight import memory_estimate_gb
@@ -46,9 +46,12 @@ from .products import product_inputs
 
 SAMPLE_SIDE = 1024
 
-#: Measured on the project's 2-core machine (README, Performance): seconds per megapixel for a
-#: whole run, and resident memory of the libraries; per-pixel working memory per thread.
-SECONDS_PER_MEGAPIXEL = 1.2
+#: Measured on the project's 2-core machine: seconds per megapixel of a run's passes
+#: (``rasterbudget bench`` at 2048 square: 7.48 s for 4.19 Mpx) and seconds per scene of what
+#: does not grow with its size (inputs' checks, summaries, quick-look, manifest: 1.5-2 s for
+#: each 0.12 Mpx demo scene, whose passes take under 1 s).
+SECONDS_PER_MEGAPIXEL = 1.8
+SECONDS_PER_SCENE = 1.5
 
 
 def sample_grid(grid: Grid) -> tuple[Grid, int]:
@@ -135,7 +138,7 @@ def inspect_scene(
     lines.append(
         f"  sun elevation at the scene centre {facts['sun_elevation_deg_centre']:.1f} deg, "
         f"azimuth {facts['sun_azimuth_deg_centre']:.1f} deg "
-        f"({facts['centre_lat']:.3f} N, {facts['centre_lon']:.3f} E; NREL SPA)"
+        f"({format_lonlat(facts['centre_lon'], facts['centre_lat'])}; NREL SPA)"
     )
     lines.append(f"  sky longwave: {facts['longwave_in']['sky_emissivity']}")
     lookups = ClassLookups.from_table(table)
@@ -175,7 +178,8 @@ def inspect_scene(
     lines += method_lines
     megapixels = grid.width * grid.height / 1e6
     members = max(1, scene.uncertainty.members)
-    seconds = SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.2 * (members - 1))
+    # an ensemble of 8 costs about 2.4x one member (README, Performance)
+    seconds = SECONDS_PER_SCENE + SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.2 * (members - 1))
     chunk = min(chunk_size, max(grid.width, grid.height))
     memory = memory_estimate_gb(chunk, scene.uncertainty.members, threads=2)
     lines.append(

@@ -9,6 +9,7 @@ passes run through the blockwise engine (``io.engine.run_blockwise``).
 
 from __future__ import annotations
 
+import logging
 import shutil
 import time
 from contextlib import contextmanager
@@ -99,6 +100,9 @@ class SecondPass:
     outputs: dict[str, Path]  # committed files
 
 
+LOG = logging.getLogger(__name__)
+
+
 def run_scene(
     recipe: Recipe,
     scene: Scene,
@@ -116,6 +120,7 @@ def run_scene(
 
         require_zarr()  # before any pass, not after minutes of work
     files = scene_files(recipe, scene, table)
+    LOG.info("scene %s: inputs %s", scene.id, ", ".join(files.paths))
     described = check_inputs(files)
     # Gridded weather: scene-wide scalars (reference ET, the sun check, ...) take each raster's
     # value at the scene centre; pixels use their own values (surface_block, anchors, pass 2).
@@ -230,6 +235,7 @@ def _timed(timings: dict[str, float], key: str):
     t0 = time.perf_counter()
     yield
     timings[key] = time.perf_counter() - t0
+    LOG.info("%s %.2f s", key.removesuffix("_s").replace("_", " "), timings[key])
 
 
 @contextmanager
