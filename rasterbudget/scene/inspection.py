@@ -52,6 +52,9 @@ SAMPLE_SIDE = 1024
 #: each 0.12 Mpx demo scene, whose passes take under 1 s).
 SECONDS_PER_MEGAPIXEL = 1.8
 SECONDS_PER_SCENE = 1.5
+#: The first scene of a run also loads the libraries (numpy, dask, rasterio, scipy, pvlib,
+#: matplotlib): 4.5-5 s against 1-2 s for the next demo scenes.
+SECONDS_TO_START = 3.0
 
 
 def sample_grid(grid: Grid) -> tuple[Grid, int]:
@@ -184,8 +187,8 @@ def inspect_scene(
     memory = memory_estimate_gb(chunk, scene.uncertainty.members, threads=2)
     lines.append(
         f"  estimate on 2 cores: about {seconds:.1f} s and {memory:.2f} GB peak memory "
-        f"for {megapixels:.1f} Mpx at chunk {chunk} (rough: measured rates, not this "
-        "scene)"
+        f"for {megapixels:.1f} Mpx at chunk {chunk}, plus about {SECONDS_TO_START:.0f} s once "
+        "per run to start (rough: measured rates, not this scene)"
     )
     if problems:
         raise AnchorError(f"scene {scene.id}: " + " Also: ".join(problems))
