@@ -64,3 +64,20 @@ def test_report_is_self_contained_with_every_section(report):
 def test_report_renders_in_headless_chromium(report, tmp_path):
     shot = render_in_chromium(report, tmp_path)
     assert shot.stat().st_size > 50_000  # a page of maps and charts, not a blank one
+
+
+def test_contents_link_every_scene_season_and_the_zone_series(report):
+    text = report.read_text()
+    sections = set(re.findall(r'<section id="([^"]+)">', text))
+    contents = text.split("<nav class='toc'>", 1)[1].split("</nav>", 1)[0]
+    targets = set(re.findall(r"href='#([^']+)'", contents))
+    assert sections == targets
+    assert {
+        "colour-scales",
+        "scene-kessendry_20260614",
+        "scene-kessendry_20260823",
+        "season-kessendry_summer_2026",
+        "zone-series",
+    } <= sections
+    # the season map's colour scale is stated with the scenes' ones
+    assert text.count("<tr data-variable='et_season'>") == 1
