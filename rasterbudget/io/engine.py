@@ -175,6 +175,9 @@ def run_blockwise(
         for w in outputs:
             w.commit()
     finally:
+        from .grid import close_read_handles
+
+        close_read_handles()  # the tasks' cached input datasets
         for w in outputs:
             if not getattr(w, "committed", False):
                 w.abort()

@@ -9,7 +9,10 @@ bounded by chunk size and each task opens its own handles (safe for threads and 
 
 from __future__ import annotations
 
+import os
+import threading
 import warnings
+from collections import OrderedDict
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -288,6 +291,51 @@ def _calibrated(data: np.ndarray, src, index: int, source: InputSource | None) -
     return data
 
 
+#: Each thread's open input datasets, and every one of them for closing.
+_THREAD_HANDLES = threading.local()
+_ALL_HANDLES: list = []
+_HANDLES_LOCK = threading.Lock()
+MAX_HANDLES_PER_THREAD = 32
+
+
+def open_for_reading(path: str):
+    """This thread's open dataset of ``path``, opened once per thread and run.
+
+    Opening a GeoTIFF costs about 2.3 ms (measured: 64 reads of the 512-pixel blocks of a
+    4096-square input took 0.20 s opening the file each time, 0.05 s on one handle); every block
+    of both passes reads every input. A dataset is never shared between threads (GDAL handles
+    are not thread-safe); a local file changed on disk (its size or time) is opened anew.
+    :func:`close_read_handles` closes them all after a computation.
+    """
+    try:
+        stat = os.stat(path)
+        key = (path, stat.st_mtime_ns, stat.st_size)
+    except OSError:  # a remote location or a subdataset name: no file to look at
+        key = (path, None, None)
+    cache = getattr(_THREAD_HANDLES, "datasets", None)
+    if cache is None:
+        cache = _THREAD_HANDLES.datasets = OrderedDict()
+    dataset = cache.get(key)
+    if dataset is not None and not dataset.closed:
+        cache.move_to_end(key)
+        return dataset
+    dataset = rasterio.open(path)
+    cache[key] = dataset
+    with _HANDLES_LOCK:
+        _ALL_HANDLES.append(dataset)
+    while len(cache) > MAX_HANDLES_PER_THREAD:
+        cache.popitem(last=False)[1].close()
+    return dataset
+
+
+def close_read_handles() -> None:
+    """Close every thread's cached input datasets (after a computation: none is in use)."""
+    with _HANDLES_LOCK:
+        for dataset in _ALL_HANDLES:
+            dataset.close()
+        _ALL_HANDLES.clear()
+
+
 def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) -> np.ndarray:
     """Read a window of one input on the target grid as float64 (NaN = nodata).
 
@@ -301,27 +349,27 @@ def read_window(source: InputSource, rows: slice, cols: slice, halo: int = 0) ->
     c0, c1 = max(cols.start - halo, 0), min(cols.stop + halo, g.width)
     window = Window(c0, r0, c1 - c0, r1 - r0)
     try:
-        with rasterio.open(source.path) as src:
-            if source.same_grid:
-                data = _read(src, window, source)
-            elif src.count > 1:
-                data = _warp_band(src, window, source)
-            else:
-                extra = (
-                    {}
-                    if source.nodata is None
-                    else {"src_nodata": source.nodata, "nodata": source.nodata}
-                )
-                with WarpedVRT(
-                    src,
-                    crs=g.crs,
-                    transform=g.transform,
-                    width=g.width,
-                    height=g.height,
-                    resampling=source.resampling,
-                    **extra,
-                ) as vrt:
-                    data = _read(vrt, window, source)
+        src = open_for_reading(source.path)
+        if source.same_grid:
+            data = _read(src, window, source)
+        elif src.count > 1:
+            data = _warp_band(src, window, source)
+        else:
+            extra = (
+                {}
+                if source.nodata is None
+                else {"src_nodata": source.nodata, "nodata": source.nodata}
+            )
+            with WarpedVRT(
+                src,
+                crs=g.crs,
+                transform=g.transform,
+                width=g.width,
+                height=g.height,
+                resampling=source.resampling,
+                **extra,
+            ) as vrt:
+                data = _read(vrt, window, source)
     except RasterioIOError as err:
         raise InputRasterError(
             f"{source.role} raster {source.path} could not be read at rows {r0}-{r1}, columns "
