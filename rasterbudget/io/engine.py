@@ -29,6 +29,7 @@ from typing import Any
 
 import numpy as np
 
+from .grid import close_read_handles
 from .writers import AtomicRaster
 
 Location = tuple[tuple[int, int], tuple[int, int]]  # ((row0, row1), (col0, col1))
@@ -170,14 +171,13 @@ def run_blockwise(
             )
         with progress() if progress is not None else contextlib.nullcontext():
             computed = compute_in_order(wanted)
+        close_read_handles()  # every task has finished: the cached input datasets close
         release_free_memory()
         finish_all([w for w in outputs if isinstance(w, AtomicRaster)])
         for w in outputs:
             w.commit()
     finally:
-        from .grid import close_read_handles
-
-        close_read_handles()  # the tasks' cached input datasets
+        close_read_handles(finished=False)  # a failure: each thread closes its own, later
         for w in outputs:
             if not getattr(w, "committed", False):
                 w.abort()

@@ -61,6 +61,9 @@ class BlockContext:
     derive_facts: tuple[tuple[str, float], ...] = ()  # scene facts of derived inputs
     mask_buffer: int = 0  # halo read for a derived cloud mask's buffer [pixels]
     halo: int = 0  # pixels read beyond each window for neighbourhood work (>= mask_buffer)
+    # the inputs that neighbourhood work reads: only these are read with the halo (the others
+    # are padded with NaN, cropped away again); empty: every input
+    halo_roles: tuple[str, ...] = ()
     anchor_screens: bool = False  # compute the anchor screens' neighbourhood features
 
 
@@ -85,7 +88,14 @@ def block_state(
     # scene were one block; everything is cropped to the window afterwards.
     halo = ctx.halo
     for source in ctx.sources:
-        if source.role != "elevation":
+        if source.role == "elevation":
+            continue
+        if halo and ctx.halo_roles and source.role not in ctx.halo_roles:
+            # not read by the neighbourhood work: a halo of NaN, cropped away below (reading
+            # a halo decodes the neighbouring GeoTIFF tiles too: 6x a block's own read)
+            values = read_window(source, rows, cols)
+            data[source.role] = np.pad(values, halo, constant_values=np.nan)
+        else:
             data[source.role] = read_window(source, rows, cols, halo=halo)
     data = derive_inputs(data, dict(ctx.derive_facts))
     masked = features = None

@@ -294,9 +294,29 @@ def _block_context(
         mask_buffer=files.mask_buffer,
         # the anchor method screens candidates by their neighbourhood
         halo=constants.screens.halo(files.mask_buffer) if screened else files.mask_buffer,
+        halo_roles=halo_roles(files.paths, files.derive_facts, files.mask_buffer),
         anchor_screens=screened,
         member_offsets=tuple(m.offsets for m in sample_members(scene.uncertainty)),
     )
+
+
+#: The inputs the neighbourhood work reads (the anchor screens: surface temperature, NDVI and
+#: the cloud mask): when each is given as a raster, only they need a halo.
+NEIGHBOURHOOD_ROLES = ("surface_temperature", "ndvi", "cloud_mask")
+
+
+def halo_roles(paths: dict, derive_facts, mask_buffer: int) -> tuple[str, ...]:
+    """The inputs to read with a halo, or () for all of them: all when any input is derived
+    from a product's bands (its surface temperature or NDVI is then made from several bands,
+    each needing the halo) or a derived cloud mask is buffered."""
+    from ..catalog.inputs import INPUTS
+
+    derived = (
+        derive_facts
+        or mask_buffer
+        or any(INPUTS[role].section == "product" for role in paths if role in INPUTS)
+    )
+    return () if derived else tuple(r for r in NEIGHBOURHOOD_ROLES if r in paths)
 
 
 def _first_pass(
