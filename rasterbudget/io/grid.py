@@ -31,7 +31,7 @@ from ..errors import InputRasterError
 from .paths import is_remote, is_subdataset
 
 #: GDAL settings for every read and write (block cache bounded; see DEVELOPERS.md).
-GDAL_OPTIONS = {"GDAL_CACHEMAX": 64, "GDAL_NUM_THREADS": 1}
+GDAL_OPTIONS = {"GDAL_CACHEMAX": 32, "GDAL_NUM_THREADS": 1}
 
 
 @dataclass(frozen=True)
