@@ -131,6 +131,7 @@ def member_spread(means, quantity: str) -> dict:
     }
 
 
-def ensemble_percentiles(members: np.ndarray) -> np.ndarray:
-    """Per-pixel percentiles over the leading member axis (NaN where any member is NaN)."""
-    return np.percentile(members, ENSEMBLE_PERCENTILES, axis=0)
+def ensemble_percentiles(members: np.ndarray, overwrite: bool = False) -> np.ndarray:
+    """Per-pixel percentiles over the leading member axis (NaN where any member is NaN);
+    ``overwrite``: ``members`` may be reordered in place (no copy of the members' block)."""
+    return np.percentile(members, ENSEMBLE_PERCENTILES, axis=0, overwrite_input=overwrite)

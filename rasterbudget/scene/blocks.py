@@ -430,7 +430,7 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
         )
         # each member's own view of reference ET: the station's (or pixel's) times its factor
         factor = np.array([m.reference_et_factor for m, _ in p.members])[:, None, None]
-        member_fractions = reference_fraction(runs["et_hourly"], hourly_reference, factor)
+        member_fractions = reference_fraction(runs.pop("et_hourly"), hourly_reference, factor)
         if c.daily_scaling == "reference_et_fraction":
             member_daily = member_fractions * (factor * daily_reference)
         else:
@@ -439,7 +439,8 @@ def pass2_block(ctx: BlockContext, p: Pass2Parameters, location) -> np.ndarray:
                 np.maximum(state["net_radiation_daily"], 0.0),
                 lam_daily,
             )
-        low, high = ensemble_percentiles(member_daily)
+        del runs  # the members' arrays are a block's size each: no more alive than needed
+        low, high = ensemble_percentiles(member_daily, overwrite=True)
         ensemble = {"et_daily_p10": low, "et_daily_p90": high}
 
     values = {
