@@ -29,6 +29,7 @@ from typing import Any
 
 import numpy as np
 
+from .cluster import close_worker_read_handles, distributed_client
 from .grid import close_read_handles
 from .writers import AtomicRaster
 
@@ -172,6 +173,9 @@ def run_blockwise(
         with progress() if progress is not None else contextlib.nullcontext():
             computed = compute_in_order(wanted)
         close_read_handles()  # every task has finished: the cached input datasets close
+        client = distributed_client()
+        if client is not None:  # and the workers' own
+            close_worker_read_handles(client)
         release_free_memory()
         finish_all([w for w in outputs if isinstance(w, AtomicRaster)])
         for w in outputs:
