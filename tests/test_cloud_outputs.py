@@ -626,3 +626,14 @@ def test_a_run_has_a_collection_of_its_scene_and_season_items_that_readers_load(
     assert _core_schema_errors(compared) == []
     assert compared["properties"]["end_datetime"] == "2026-08-31T23:59:59Z"
     assert {"difference", "percent_change", "summary"} <= set(compared["assets"])
+    # pystac's own validator, core specification (its extension schemas need the network)
+    from pystac.validation.stac_validator import JsonSchemaSTACValidator
+
+    validator = JsonSchemaSTACValidator()
+    for document, kind in (
+        (raw, pystac.STACObjectType.COLLECTION),
+        (season_item, pystac.STACObjectType.ITEM),
+        (compared, pystac.STACObjectType.ITEM),
+        (json.loads((out / SCENE / f"{SCENE}.stac.json").read_text()), pystac.STACObjectType.ITEM),
+    ):
+        assert validator.validate_core(document, kind, document["stac_version"]) is not None
