@@ -11,23 +11,12 @@ import rasterio
 
 import rasterbudget
 from tests.conftest import ROOT, TINY
+from tests.validation._scenes import DAILY as SCENE_DAILY
+from tests.validation._scenes import OVERPASS as SCENE_OVERPASS
 
 SCENE = "kessendry_20260614"
-OVERPASS = {
-    "station_elevation_m": 1560.0,
-    "wind_height_m": 2.0,
-    "air_temperature_c": 26.5,
-    "relative_humidity_pct": 28.0,
-    "wind_speed_m_s": 3.4,
-}
-DAILY = {
-    "tmax_c": 31.0,
-    "tmin_c": 12.5,
-    "rh_max_pct": 62.0,
-    "rh_min_pct": 18.0,
-    "shortwave_mj_m2": 29.8,
-    "wind_speed_m_s": 2.9,
-}
+# the demo scene's weather, as the validation scenes use it
+OVERPASS, DAILY = SCENE_OVERPASS, SCENE_DAILY
 
 
 def demo_inputs(chunks=None):

@@ -71,41 +71,37 @@ def zone_fraction_means(recipe, settings, scene_ids: list[str]) -> dict[str, dic
     from ..catalog.variables import MEMBER_FRACTIONS
     from ..io.engine import effective_chunk_size
     from ..recipe import resolve_path
-    from .zones import load_zones, zone_rows, zone_totals
+    from .zones import zone_rows, zone_totals_of, zones_on_grid
 
     out: dict[str, dict[str, dict]] = {}
-    prepared: dict[str, tuple] = {}  # the zones on each grid CRS: read and transformed once
     chunk = effective_chunk_size(settings.chunk_size)
     for sid in scene_ids:
         raster = settings.out_dir / sid / "reference_et_fraction.tif"
         if not raster.is_file():
             continue
         with rasterio.open(raster) as src:
-            crs = src.crs
-        if crs.to_wkt() not in prepared:
-            ids, _, _, geometries = load_zones(
-                resolve_path(recipe, recipe.zones.path), recipe.zones.id_property, crs
+            zones = zones_on_grid(
+                resolve_path(recipe, recipe.zones.path), recipe.zones.id_property, src.crs
             )
-            prepared[crs.to_wkt()] = (ids, geometries)
-        ids, geometries = prepared[crs.to_wkt()]
+        ids = zones.ids
         # over valid unflagged cells, as the zone tables' depths (flagged: reported apart)
         qa = settings.out_dir / sid / "qa_flags.tif"
         qa = qa if qa.is_file() else None
-        # mean_depth_mm is the weighted mean of the raster's values (here a fraction, not mm)
-        rows = zone_rows(ids, zone_totals(raster, geometries, chunk, qa), "reference_et_fraction")
-        out[sid] = {r["zone_id"]: {"fraction": r["mean_depth_mm"]} for r in rows}
         stack = settings.out_dir / sid / f"{MEMBER_FRACTIONS}.tif"
-        if not stack.is_file():
+        rasters = [(raster, False)] + ([(stack, True)] if stack.is_file() else [])
+        # one pass for the fraction and the members' fractions
+        totals, *members = zone_totals_of(rasters, zones.geometries, chunk, qa)
+        # mean_depth_mm is the weighted mean of the raster's values (here a fraction, not mm)
+        rows = zone_rows(ids, totals, "reference_et_fraction")
+        out[sid] = {r["zone_id"]: {"fraction": r["mean_depth_mm"]} for r in rows}
+        if not members:
             continue
         manifest = json.loads((settings.out_dir / sid / "manifest.json").read_text())
         factors = np.array([m["reference_et_factor"] for m in manifest["ensemble"]])
-        per_member = [
-            zone_rows(ids, totals, MEMBER_FRACTIONS)
-            for totals in zone_totals(stack, geometries, chunk, qa, bands=True)
-        ]
+        per_member = [zone_rows(ids, t, MEMBER_FRACTIONS) for t in members[0]]
         for k, zone in enumerate(ids):
-            members = np.array([m[k]["mean_depth_mm"] for m in per_member])
-            out[sid][zone] |= {"members": members, "factors": factors}
+            fractions = np.array([m[k]["mean_depth_mm"] for m in per_member])
+            out[sid][zone] |= {"members": fractions, "factors": factors}
     return out
 
 
@@ -194,16 +190,17 @@ def zone_daily_reference(recipe, settings, manifest: dict) -> dict[str, np.ndarr
     from ..io.grid import Grid
     from ..recipe import resolve_path
     from .totals import gridded_reference_et, season_days
-    from .zones import load_zones
+    from .zones import zones_on_grid
 
     season = next(s for s in recipe.season if s.id == manifest["season_id"])
     with rasterio.open(manifest["outputs"]["et_season.tif"]) as src:
         grid = Grid(src.crs, src.transform, src.width, src.height)
     days = season_days(season.start, season.end)
     sources = gridded_reference_et(recipe, season, days, grid)
-    ids, _, _, geometries = load_zones(
+    zones = zones_on_grid(
         resolve_path(recipe, recipe.zones.path), recipe.zones.id_property, grid.crs
     )
+    ids, geometries = zones.ids, zones.geometries
     result = run_blockwise(
         BlockLayout(grid.height, grid.width, effective_chunk_size(settings.chunk_size)),
         _zone_daily_sums,

@@ -15,9 +15,11 @@ exact definition).
 
 from __future__ import annotations
 
+import functools
 import io
 import itertools
 import json
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -263,11 +265,12 @@ def block_coverage(
 
 
 def zone_sums_of_raster_block(
-    raster: Path, geometries: list, boxes: list, grid, qa: Path | None, bands: bool, location
-) -> list[np.ndarray]:
-    """A one-item list holding ``zone_block`` of one block of a depth raster [mm] (with
-    ``bands``, of each of its bands, stacked: the cells' coverage found once). A list so that
-    the blocks' sums concatenate in row-major order and are added in that order."""
+    rasters: list[tuple[Path, bool]], geometries: list, boxes: list, grid, qa: Path | None, location
+) -> list[tuple[np.ndarray, ...]]:
+    """A one-item list holding, for each (raster, bands) of ``rasters``, ``zone_block`` of one
+    block of that depth raster [mm] (with ``bands``, of each of its bands, stacked): the cells'
+    coverage is found once for all. A list so that the blocks' sums concatenate in row-major
+    order and are added in that order."""
     import rasterio
     from rasterio import windows
 
@@ -275,9 +278,6 @@ def zone_sums_of_raster_block(
 
     (r0, r1), (c0, c1) = location
     window = windows.Window(c0, r0, c1 - c0, r1 - r0)
-    with rasterio.open(raster) as src:
-        indexes = None if bands else 1
-        depth = src.read(indexes, window=window, masked=True).astype(np.float64).filled(np.nan)
     flagged = None
     if qa is not None:
         from .totals import SEASON_QA, SEASON_UNRELIABLE
@@ -288,9 +288,19 @@ def zone_sums_of_raster_block(
             bits = src.read(1, window=window).astype(np.int64)
         flagged = (bits & bit) != 0
     coverage = block_coverage(geometries, boxes, grid, location)
-    if not bands:
-        return [zone_block(depth, coverage, len(geometries), flagged)]
-    return [np.stack([zone_block(d, coverage, len(geometries), flagged) for d in depth])]
+    sums = []
+    for raster, bands in rasters:
+        with rasterio.open(raster) as src:
+            indexes = None if bands else 1
+            depth = src.read(indexes, window=window, masked=True)
+        depth = depth.astype(np.float64).filled(np.nan)
+        if bands:
+            sums.append(
+                np.stack([zone_block(d, coverage, len(geometries), flagged) for d in depth])
+            )
+        else:
+            sums.append(zone_block(depth, coverage, len(geometries), flagged))
+    return [tuple(sums)]
 
 
 def zone_totals(
@@ -299,6 +309,14 @@ def zone_totals(
     """Sum zone_block over the raster's blocks of ``chunk`` pixels (one pass, bounded memory):
     per zone the :data:`SUMS`, an array (sums, zones); with ``bands`` for each band of the
     raster, an array (bands, sums, zones)."""
+    return zone_totals_of([(raster, bands)], geometries, chunk, qa)[0]
+
+
+def zone_totals_of(
+    rasters: list[tuple[Path, bool]], geometries: list, chunk: int, qa: Path | None = None
+) -> list[np.ndarray]:
+    """:func:`zone_totals` of several rasters of one grid, (raster, bands) each, in one pass:
+    the cells' coverage by the zones (the costly part) found once per block for all of them."""
     import operator
 
     import rasterio
@@ -307,18 +325,55 @@ def zone_totals(
     from ..io.engine import BlockLayout, run_blockwise
     from ..io.grid import Grid
 
-    with rasterio.open(raster) as src:
+    with rasterio.open(rasters[0][0]) as src:
         grid = Grid(src.crs, src.transform, src.width, src.height)
     boxes = [features.bounds(g) for g in geometries]
     result = run_blockwise(
         BlockLayout(grid.height, grid.width, chunk),
         zone_sums_of_raster_block,
-        args=(raster, geometries, boxes, grid, qa, bands),
+        args=(rasters, geometries, boxes, grid, qa),
         combine=operator.add,  # concatenates the blocks' one-item lists, in row-major order
     )
     # added block after block in row-major order, whatever the engine's reduction tree: the
     # totals' last bits do not depend on how the blocks were combined
-    return np.sum(result.summary, axis=0)
+    return [np.sum([block[k] for block in result.summary], axis=0) for k in range(len(rasters))]
+
+
+@dataclass
+class ZonesOnGrid:
+    """A zone file's zones in one grid's CRS: ids, properties, geometries on the grid; their
+    geodesic areas and WGS84 outlines made when first asked for."""
+
+    ids: list[str]
+    properties: list[dict]
+    geometries: list[dict]
+    crs: object
+
+    @functools.cached_property
+    def areas(self) -> list[float]:
+        return [polygon_area(g, self.crs.to_wkt()) for g in self.geometries]
+
+    @functools.cached_property
+    def lonlat(self) -> list[dict]:
+        from rasterio.warp import transform_geom
+
+        return [transform_geom(self.crs, "EPSG:4326", g) for g in self.geometries]
+
+
+def zones_on_grid(path: Path, id_property: str, crs) -> ZonesOnGrid:
+    """The zones of ``path`` in ``crs``, read and transformed once per file version and CRS
+    (every scene, season and zone series of a run shares them)."""
+    stat = Path(path).stat()
+    return _zones_on_grid(str(path), stat.st_mtime_ns, stat.st_size, id_property, crs.to_wkt())
+
+
+@functools.lru_cache(maxsize=8)
+def _zones_on_grid(path: str, _mtime: int, _size: int, id_property: str, wkt: str) -> ZonesOnGrid:
+    from rasterio.crs import CRS
+
+    crs = CRS.from_wkt(wkt)
+    ids, properties, _, geometries = load_zones(Path(path), id_property, crs)
+    return ZonesOnGrid(ids, properties, geometries, crs)
 
 
 def polygon_area(geometry: dict, crs) -> float:
@@ -449,7 +504,6 @@ def write_zone_tables(
 def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
     """Zone tables for each (folder, variable) target that exists under ``settings.out_dir``."""
     import rasterio
-    from rasterio.warp import transform_geom
 
     from ..io.engine import effective_chunk_size
     from ..recipe import resolve_path
@@ -457,45 +511,31 @@ def run_zones(recipe, settings, targets: list[tuple[str, str]]) -> list[Path]:
 
     spec = recipe.zones
     written = []
-    prepared: dict[str, tuple] = {}  # the zones on each grid CRS: read and transformed once
     for folder, variable in targets:
         raster = settings.out_dir / folder / f"{variable}.tif"
         if not raster.is_file():
             continue
         with rasterio.open(raster) as src:
-            crs = src.crs
-        if crs.to_wkt() not in prepared:
-            ids, props, _, geometries = load_zones(
-                resolve_path(recipe, spec.path), spec.id_property, crs
-            )
-            areas = [polygon_area(g, crs.to_wkt()) for g in geometries]
-            lonlat = [transform_geom(crs, "EPSG:4326", g) for g in geometries]
-            prepared[crs.to_wkt()] = (ids, props, geometries, areas, lonlat)
-        ids, props, geometries, areas, lonlat = prepared[crs.to_wkt()]
+            zones = zones_on_grid(resolve_path(recipe, spec.path), spec.id_property, src.crs)
         qa = settings.out_dir / folder / "qa_flags.tif"
         if not qa.is_file():  # a season: its own QA bits
             qa = settings.out_dir / folder / SEASON_QA
-        totals = zone_totals(
-            raster,
-            geometries,
+        members = settings.out_dir / folder / f"{variable}_members.tif"
+        rasters = [(raster, False)] + ([(members, True)] if members.is_file() else [])
+        # one pass for the raster and, for a season, its members' stack
+        totals, *member_totals = zone_totals_of(
+            rasters,
+            zones.geometries,
             effective_chunk_size(settings.chunk_size),
             qa if qa.is_file() else None,
         )
-        rows = zone_rows(ids, totals, variable, areas)
-        members = settings.out_dir / folder / f"{variable}_members.tif"
-        if members.is_file():  # a season's members: their zone totals' percentiles
-            member_totals = zone_totals(
-                members,
-                geometries,
-                effective_chunk_size(settings.chunk_size),
-                qa if qa.is_file() else None,
-                bands=True,
-            )
-            rows = with_member_percentiles(rows, ids, member_totals, areas)
+        rows = zone_rows(zones.ids, totals, variable, zones.areas)
+        if member_totals:  # a season's members: their zone totals' percentiles
+            rows = with_member_percentiles(rows, zones.ids, member_totals[0], zones.areas)
         if spec.flagged_substitute is not None:
             rows = with_substitute(
                 rows, spec.flagged_substitute, reference_depth(settings.out_dir / folder)
             )
-        write_zone_tables(settings.out_dir / folder, rows, props, lonlat)
+        write_zone_tables(settings.out_dir / folder, rows, zones.properties, zones.lonlat)
         written.append(settings.out_dir / folder / "zones.csv")
     return written
