@@ -32,6 +32,7 @@ __all__ = [
     "RULES",
     "ScreenSettings",
     "anchor_candidates",
+    "homogeneous_pixels",
     "neighbourhood_features",
     "surface_rules",
 ]
@@ -129,6 +130,24 @@ def neighbourhood_features(
     return out
 
 
+def homogeneous_pixels(
+    features: dict[str, np.ndarray], s: ScreenSettings, shape: tuple[int, ...] | None = None
+) -> np.ndarray:
+    """Pixels whose neighbourhood passes the homogeneity screens (Ts and NDVI spread), from
+    :func:`neighbourhood_features`, or as carried from an earlier pass (``homogeneous``)."""
+    if "homogeneous" in features:
+        return features["homogeneous"]
+    if shape is None:
+        shape = features["ts_spread"].shape
+    homogeneous = np.ones(shape, dtype=bool)
+    with np.errstate(invalid="ignore"):
+        if "ts_spread" in features:
+            homogeneous &= features["ts_spread"] <= s.max_ts_spread
+        if "ndvi_spread" in features:
+            homogeneous &= features["ndvi_spread"] <= s.max_ndvi_spread
+    return homogeneous
+
+
 def anchor_candidates(
     rules: dict[str, tuple[np.ndarray, np.ndarray]],
     clean: np.ndarray,
@@ -160,11 +179,7 @@ def anchor_candidates(
             if illumination is None
             else np.abs(illumination - 1.0) <= s.illumination_tolerance
         )
-        homogeneous = np.ones(clean.shape, dtype=bool)
-        if "ts_spread" in features:
-            homogeneous &= features["ts_spread"] <= s.max_ts_spread
-        if "ndvi_spread" in features:
-            homogeneous &= features["ndvi_spread"] <= s.max_ndvi_spread
+        homogeneous = homogeneous_pixels(features, s, clean.shape)
     away = ~features["near_mask"] if "near_mask" in features else np.ones(clean.shape, bool)
     counts = np.zeros((2, len(RULES)), dtype=np.int64)
     out = []

@@ -289,7 +289,8 @@ def surface_block(
     else:
         rn_daily = np.full(albedo.shape, np.nan)
 
-    rho = turbulence.air_density(turbulence.air_pressure(z), air_temperature)
+    pressure = turbulence.air_pressure(z)
+    rho = turbulence.air_density(pressure, air_temperature)
     roughness = lookups.roughness_length[codes]
     if c.roughness_from_ndvi and ndvi is not None:  # no land-cover map: the continuous relation
         roughness = np.where(
@@ -322,7 +323,7 @@ def surface_block(
         "albedo": albedo,
         "air_temperature": air_temperature,
         "vapour_pressure": vapour_pressure,
-        "air_pressure": turbulence.air_pressure(z),
+        "air_pressure": pressure,
         "surface_emissivity": eps_surface,
         "ground_heat_ratio": ratio,
         "edge_candidate": clean & near_station,

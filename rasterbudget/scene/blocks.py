@@ -10,6 +10,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from rasterio.windows import Window
 
 from ..catalog.inputs import INPUTS, derive_inputs, gridded_weather_in_si
 from ..catalog.qa import QA
@@ -19,6 +20,7 @@ from ..errors import InputValueError
 from ..io.grid import (
     Grid,
     InputSource,
+    open_for_reading,
     read_window,
 )
 from ..methods import get_method
@@ -28,7 +30,12 @@ from ..physics.constants import SECONDS_PER_HOUR
 from ..physics.solar import (
     surface_normal,
 )
-from ..screens import neighbourhood_features, surface_rules
+from ..screens import (
+    ScreenSettings,
+    homogeneous_pixels,
+    neighbourhood_features,
+    surface_rules,
+)
 from ..surface import (
     ClassLookups,
     SceneConstants,
@@ -65,6 +72,42 @@ class BlockContext:
     # are padded with NaN, cropped away again); empty: every input
     halo_roles: tuple[str, ...] = ()
     anchor_screens: bool = False  # compute the anchor screens' neighbourhood features
+    # pass 2: the scratch raster of pass 1's neighbourhood results (CARRIED_* bits), read in
+    # place of the halo; empty: neighbourhood work from the halo
+    carried: str = ""
+
+
+#: Bits of the scratch raster pass 1 writes for pass 2, so that pass 2 reads its windows without
+#: a halo (a halo decodes the neighbouring GeoTIFF tiles: py-spy, 4096 scene, the halo reads were
+#: most of the reading time): the pixel passes the homogeneity screens; a masked pixel lies within
+#: the cloud distance; the pixel itself is masked (after a derived mask's buffer).
+CARRIED_HOMOGENEOUS, CARRIED_NEAR_MASK, CARRIED_MASKED = 1, 2, 4
+
+
+def carried_bits(
+    features: dict[str, np.ndarray] | None,
+    masked: np.ndarray | None,
+    settings: ScreenSettings,
+    shape: tuple[int, ...],
+) -> np.ndarray:
+    """Pass 1's neighbourhood results of a window as CARRIED_* bits (uint8)."""
+    bits = np.zeros(shape, dtype=np.uint8)
+    features = features or {}
+    bits[homogeneous_pixels(features, settings, shape)] |= CARRIED_HOMOGENEOUS
+    if "near_mask" in features:
+        bits[features["near_mask"]] |= CARRIED_NEAR_MASK
+    if masked is not None:
+        bits[masked] |= CARRIED_MASKED
+    return bits
+
+
+def carried_features(bits: np.ndarray) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """The anchor screens' features and the masked pixels from CARRIED_* bits."""
+    features = {
+        "homogeneous": (bits & CARRIED_HOMOGENEOUS) > 0,
+        "near_mask": (bits & CARRIED_NEAR_MASK) > 0,
+    }
+    return features, (bits & CARRIED_MASKED) > 0
 
 
 def block_state(
@@ -73,13 +116,15 @@ def block_state(
     cols: slice,
     daily: bool = True,
     candidates_only: bool = False,
+    value_stats: bool = False,
 ) -> dict[str, np.ndarray]:
     """Read one window of every input and compute its surface state.
 
     ``daily``: with the daily net radiation (pass 1 does not need it). ``candidates_only``: the
     state of the pixels whose class may serve as an anchor only, as 1-D arrays, with their
     row-major index in the window as ``window_index`` (pass 1 of the anchor method: the other
-    pixels never enter its histograms, and skipping them halved pass 1's time).
+    pixels never enter its histograms, and skipping them halved pass 1's time). ``value_stats``:
+    with the inputs' value statistics (``input_stats``) for pass 1's checks of the inputs.
     """
     data = {}
     normal = None
@@ -88,8 +133,8 @@ def block_state(
     # scene were one block; everything is cropped to the window afterwards.
     halo = ctx.halo
     for source in ctx.sources:
-        if source.role == "elevation":
-            continue
+        if source.role == "elevation" or (ctx.carried and source.role == "cloud_mask"):
+            continue  # the DEM below; the cloud mask's result is carried from pass 1
         if halo and ctx.halo_roles and source.role not in ctx.halo_roles:
             # not read by the neighbourhood work: a halo of NaN, cropped away below (reading
             # a halo decodes the neighbouring GeoTIFF tiles too: 6x a block's own read)
@@ -98,12 +143,20 @@ def block_state(
         else:
             data[source.role] = read_window(source, rows, cols, halo=halo)
     data = derive_inputs(data, dict(ctx.derive_facts))
-    masked = features = None
-    if "cloud_mask" in data:
+    masked = features = carried = None
+    if ctx.carried:  # pass 2: pass 1's neighbourhood results, read in place of a halo
+        carried = open_for_reading(ctx.carried).read(
+            1, window=Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
+        )
+        features, masked = carried_features(carried)
+        data.pop("cloud_mask", None)  # derived from a product's bands: its result is carried
+        if not ctx.anchor_screens:
+            features = None
+    elif "cloud_mask" in data:
         if ctx.mask_buffer:
             data["cloud_mask"] = buffered_mask(data["cloud_mask"])
         masked = mask_pixels(data["cloud_mask"], ctx.mask_values, ctx.mask_bits)
-    if ctx.anchor_screens:
+    if ctx.anchor_screens and not ctx.carried:
         features = neighbourhood_features(
             data["surface_temperature"],
             data.get("ndvi"),
@@ -118,6 +171,11 @@ def block_state(
         data = {role: crop(values) for role, values in data.items()}
         masked = None if masked is None else crop(masked)
         features = None if features is None else {k: crop(v) for k, v in features.items()}
+    # pass 1 keeps its neighbourhood results for pass 2 (written by pass1_block)
+    carry = None
+    if ctx.halo and not ctx.carried:
+        shape = (rows.stop - rows.start, cols.stop - cols.start)
+        carry = carried_bits(features, masked, ctx.constants.screens, shape)
     for source in ctx.sources:
         if source.role == "elevation":
             # one-pixel halo for the slope; edge pixels repeat beyond the grid
@@ -125,13 +183,16 @@ def block_state(
             dx, dy = ctx.metric_pixel_size
             normal = tuple(n[1:-1, 1:-1] for n in surface_normal(haloed, dx, dy))
             data["elevation"] = haloed[1:-1, 1:-1]
-    stats = {role: input_stats(role, values) for role, values in data.items()}
+    stats = {}
+    if value_stats:
+        stats = {role: input_stats(role, values) for role, values in data.items()}
     data.pop("cloud_mask", None)
     if ctx.remap:
         data["land_cover"], stats["land_cover_unmapped"] = remap_codes(
             data["land_cover"], dict(ctx.remap)
         )
-    stats["land_cover_known"] = known_cover_counts(data["land_cover"], ctx.lookups.known)
+    if value_stats:
+        stats["land_cover_known"] = known_cover_counts(data["land_cover"], ctx.lookups.known)
     lon, lat, sun = pixel_geometry(ctx.grid, rows, cols, ctx.constants)
     window_index = prior_counts = None
     if candidates_only:
@@ -193,6 +254,8 @@ def block_state(
         state["blending_wind_speed"] = np.full(state["qa"].shape, ctx.blending_wind_speed)
     if window_index is not None:
         state["window_index"] = window_index
+    if carry is not None:
+        state["carried"] = carry
     return state
 
 
@@ -352,8 +415,12 @@ def mask_pixels(mask: np.ndarray, values: tuple[int, ...], bits: tuple[int, ...]
     return drop & finite
 
 
-def pass1_block(ctx: BlockContext, location):
-    """Pass 1 for one block: read, surface state, then the method's partial reduction."""
+def pass1_block(ctx: BlockContext, carried, location):
+    """Pass 1 for one block: read, surface state, then the method's partial reduction.
+
+    ``carried``: the scratch raster (a writer) that receives the block's neighbourhood results
+    (CARRIED_* bits) for pass 2, or None when there is no neighbourhood work.
+    """
     (r0, r1), (c0, c1) = location
     method = get_method(ctx.method)
     state = block_state(
@@ -362,7 +429,10 @@ def pass1_block(ctx: BlockContext, location):
         slice(c0, c1),
         daily=False,
         candidates_only=method.pass1_candidates_only,
+        value_stats=True,
     )
+    if carried is not None:
+        carried[slice(r0, r1), slice(c0, c1)] = state["carried"]
     return method.pass1_block(state, location, ctx), state["input_stats"]
 
 

@@ -13,7 +13,7 @@ import logging
 import shutil
 import time
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import partial
 from pathlib import Path
 
@@ -159,12 +159,18 @@ def run_scene(
     try:
         with rasterio.Env(**GDAL_OPTIONS), _outputs_failing_as(scene.id, out_dir):
             ctx = _block_context(scene, files, constants, ClassLookups.from_table(table), facts)
-            with _timed(timings, "pass1_s"):
-                reduced, input_stats = _first_pass(ctx, layout, method, scene.id, settings.progress)
-                value_summary = check_input_values(input_stats, ctx.sources)
-                calibrated = _calibrate(method, reduced, scene, ctx, gridded)
-            with _timed(timings, "pass2_s"):
-                second = _second_pass(ctx, layout, calibrated, scene, table, settings, out_dir)
+            with _carried_screens(ctx, layout, out_dir) as carried:
+                with _timed(timings, "pass1_s"):
+                    reduced, input_stats = _first_pass(
+                        ctx, carried, layout, method, scene.id, settings.progress
+                    )
+                    value_summary = check_input_values(input_stats, ctx.sources)
+                    calibrated = _calibrate(method, reduced, scene, ctx, gridded)
+                with _timed(timings, "pass2_s"):
+                    if carried is not None:  # pass 2 reads pass 1's results, not a halo
+                        carried.finish()
+                        ctx = replace(ctx, halo=0, halo_roles=(), carried=str(carried.partial))
+                    second = _second_pass(ctx, layout, calibrated, scene, table, settings, out_dir)
             outputs |= second.outputs
             with _timed(timings, "summaries_s"):
                 _, classes = _write_summaries(
@@ -319,17 +325,51 @@ def halo_roles(paths: dict, derive_facts, mask_buffer: int) -> tuple[str, ...]:
     return () if derived else tuple(r for r in NEIGHBOURHOOD_ROLES if r in paths)
 
 
+@contextmanager
+def _carried_screens(ctx: BlockContext, layout: BlockLayout, out_dir: Path):
+    """The scratch raster pass 1 fills with its neighbourhood results for pass 2 (None when
+    nothing is read with a halo); removed afterwards, whatever happens."""
+    if not ctx.halo:
+        yield None
+        return
+    writer = AtomicRaster(
+        out_dir / CARRIED_SCRATCH,
+        ctx.grid,
+        "uint8",
+        None,
+        block_size_for(layout.chunk),
+        "carried",
+        "1",
+        "pass 1's neighbourhood screens for pass 2 (scratch)",
+    )
+    try:
+        yield writer
+    finally:
+        writer.abort()  # never committed: its temporary file goes
+
+
+#: The scratch raster's name in a scene's output folder (its temporary name ends in .partial,
+#: so a crashed run's copy is cleared with the other partial files).
+CARRIED_SCRATCH = "pass1_screens.tif"
+
+
 def _first_pass(
-    ctx: BlockContext, layout: BlockLayout, method: SensibleHeatMethod, label: str, bar: bool
+    ctx: BlockContext,
+    carried: AtomicRaster | None,
+    layout: BlockLayout,
+    method: SensibleHeatMethod,
+    label: str,
+    bar: bool,
 ):
     """Pass 1: the method's reduction and the inputs' value statistics, over every block. Each
-    task reads its own windows, so input blocks are never read far ahead of their use."""
+    task reads its own windows, so input blocks are never read far ahead of their use; with
+    ``carried``, each also writes its neighbourhood results there for pass 2."""
     from ..io.progress import TaskProgress
 
     result = run_blockwise(
         layout,
         blocks.pass1_block,
-        args=(ctx,),
+        args=(ctx, carried),
         combine=lambda a, b: (method.combine(a[0], b[0]), merge_input_stats(a[1], b[1])),
         progress=lambda: TaskProgress(f"{label} pass 1", bar),
     )
