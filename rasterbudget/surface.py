@@ -8,6 +8,7 @@ does not depend on where chunk boundaries fall.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 import numpy as np
 
@@ -146,17 +147,38 @@ def input_qa(
     return qa, missing
 
 
+class DailySun(NamedTuple):
+    """The day's sun at each pixel: extraterrestrial radiation [MJ m-2 d-1] (FAO-56 eq. 21) and
+    daylight hours [h] (eq. 34)."""
+
+    extraterrestrial_radiation: np.ndarray
+    daylight_hours: np.ndarray
+
+
 def net_radiation_daily_block(
-    c: SceneConstants, latitude: np.ndarray, elevation: np.ndarray, albedo: np.ndarray
+    c: SceneConstants,
+    latitude: np.ndarray,
+    elevation: np.ndarray,
+    albedo: np.ndarray,
+    day: DailySun | None = None,
 ) -> np.ndarray:
     """FAO-56 daily net radiation of each pixel (eqs. 21, 34-40) with its own albedo and the
-    day's station shortwave (as Rs/Rso) or sunshine hours. [MJ m-2 d-1]"""
-    ra = extraterrestrial_radiation_daily(latitude, c.day_of_year)
+    day's station shortwave (as Rs/Rso) or sunshine hours. [MJ m-2 d-1]
+
+    ``day``: the day's sun at the pixels when already known (interpolated from a lattice);
+    otherwise computed from ``latitude``.
+    """
+    if day is None:
+        day = DailySun(
+            extraterrestrial_radiation_daily(latitude, c.day_of_year),
+            daylight_hours(latitude, c.day_of_year),
+        )
+    ra = day.extraterrestrial_radiation
     rso = radiation.clear_sky_shortwave_daily(ra, elevation)
     if c.daily_clearness is not None:
         rs = c.daily_clearness * rso
     else:
-        n_max = daylight_hours(latitude, c.day_of_year)
+        n_max = day.daylight_hours
         rs = radiation.shortwave_daily_from_sunshine(ra, np.minimum(c.sunshine_hours, n_max), n_max)
     rnl = radiation.net_longwave_daily(c.tmax, c.tmin, c.vapour_pressure_daily, rs, rso)
     return radiation.net_radiation_daily(albedo, rs, rnl)
@@ -180,6 +202,7 @@ def surface_block(
     sun: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
     daily: bool = True,
     features: dict[str, np.ndarray] | None = None,
+    daily_sun: DailySun | None = None,
 ) -> dict[str, np.ndarray]:
     """Per-pixel radiation budget, ground heat flux, air properties and QA for one block.
 
@@ -193,6 +216,8 @@ def surface_block(
     sun : unit vector towards the sun (east, north, up) per pixel; computed from latitude and
         longitude when not given. [-]
     daily : also compute the FAO-56 daily net radiation (not needed for anchor histograms).
+    daily_sun : the day's sun at the pixels (:class:`DailySun`); computed from the latitude when
+        not given.
     features : neighbourhood features of the pixels for the anchor screens
         (:func:`rasterbudget.screens.neighbourhood_features`); None: those screens pass.
     masked : pixels dropped by a cloud/QA mask. [bool]
@@ -285,7 +310,7 @@ def surface_block(
 
     # FAO-56 daily net radiation per pixel (eqs. 21, 34-40) with the pixel's own albedo.
     if daily:
-        rn_daily = net_radiation_daily_block(c, latitude, z, albedo)
+        rn_daily = net_radiation_daily_block(c, latitude, z, albedo, daily_sun)
     else:
         rn_daily = np.full(albedo.shape, np.nan)
 

@@ -48,3 +48,43 @@ def test_tile_statistics_agree_in_tasks_and_from_the_array():
     )
     assert in_tasks.tiles == rechunked.tiles
     assert sum(map(sum, in_tasks.tiles)) == values.sum()
+
+
+def _tile_statistics_plainly(block: np.ndarray) -> np.ndarray:
+    """The tile statistics as numpy gives them on each variable's finite values (float64)."""
+    out = np.full((block.shape[0], 8), np.nan)
+    for v, layer in enumerate(block):
+        values = layer[np.isfinite(layer)].astype(np.float64)
+        out[v, 0] = values.size
+        if values.size:
+            p10, p50, p90 = np.percentile(values, [10, 50, 90])  # numpy's 'linear' method
+            out[v, 1:] = (values.mean(), values.std(), values.min(), p10, p50, p90, values.max())
+    return out
+
+
+def test_tile_statistics_equal_numpys_on_the_unsorted_values():
+    from rasterbudget.scene.summaries import tile_statistics
+
+    rng = np.random.default_rng(7)
+    block = rng.normal(300.0, 12.0, (5, 256, 256))
+    block[rng.random(block.shape) < 0.2] = np.nan
+    block[1] = np.nan  # no value at all: count 0, the rest NaN
+    block[2, :, :] = np.nan
+    block[2, 3, 4] = 5.0  # a single value
+    block[3] = np.round(block[3])  # many ties
+    for dtype in (np.float32, np.float64):
+        typed = block.astype(dtype)
+        np.testing.assert_array_equal(tile_statistics(typed), _tile_statistics_plainly(typed))
+
+
+def test_percentiles_of_sorted_values_equal_numpys():
+    from rasterbudget.scene.summaries import TILE_PERCENTILES, percentiles_of_sorted
+
+    rng = np.random.default_rng(11)
+    for n in (*range(1, 40), 1000, 65536):
+        for values in (rng.normal(0.0, 1.0, n), np.round(rng.normal(5.0, 2.0, n))):
+            ordered = np.sort(values)
+            np.testing.assert_array_equal(
+                percentiles_of_sorted(ordered, TILE_PERCENTILES),
+                np.percentile(values, [10, 50, 90]),
+            )

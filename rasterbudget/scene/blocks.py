@@ -42,7 +42,7 @@ from ..surface import (
     land_cover_codes,
     surface_block,
 )
-from .geometry import pixel_geometry
+from .geometry import daily_sun, pixel_geometry
 from .summaries import (
     HISTOGRAM_RANGES,
     class_histograms,
@@ -194,6 +194,7 @@ def block_state(
     if value_stats:
         stats["land_cover_known"] = known_cover_counts(data["land_cover"], ctx.lookups.known)
     lon, lat, sun = pixel_geometry(ctx.grid, rows, cols, ctx.constants)
+    day = daily_sun(ctx.grid, rows, cols, ctx.constants.day_of_year) if daily else None
     window_index = prior_counts = None
     if candidates_only:
         # the pixels that pass the first two screens (surface, vegetation) for either role
@@ -219,6 +220,7 @@ def block_state(
         data = {k: pick(v) for k, v in data.items()}
         lon, lat, sun = pick(lon), pick(lat), tuple(pick(s) for s in sun)
         normal = None if normal is None else tuple(pick(n) for n in normal)
+        day = None if day is None else type(day)(*(pick(x) for x in day))
         masked = None if masked is None else pick(masked)
         features = None if features is None else {k: pick(v) for k, v in features.items()}
     state = surface_block(
@@ -237,6 +239,7 @@ def block_state(
         masked=masked,
         weather=gridded_weather_in_si(data),
         features=features,
+        daily_sun=day,
     )
     for name in ("hourly_raster", "daily_raster"):  # gridded reference ET, if given
         if name in data:

@@ -38,11 +38,40 @@ def tile_statistics(block: np.ndarray) -> np.ndarray:
     """
     out = np.full((block.shape[0], 1 + len(TILE_STATS)), np.nan)
     for v in range(block.shape[0]):
-        values = block[v][np.isfinite(block[v])].astype(np.float64)
+        finite = block[v][np.isfinite(block[v])]
+        values = finite.astype(np.float64)
         out[v, 0] = values.size
         if values.size:
-            p10, p50, p90 = np.percentile(values, [10, 50, 90])
-            out[v, 1:] = (values.mean(), values.std(), values.min(), p10, p50, p90, values.max())
+            # numpy's vectorised sort, then numpy's own interpolation between the order
+            # statistics: 0.1 ms against 0.65 ms for np.percentile's selection (a 256 x 256
+            # float32 tile; py-spy: the tiles were 10 % of a scene's time)
+            ordered = np.sort(finite).astype(np.float64)
+            p10, p50, p90 = percentiles_of_sorted(ordered, TILE_PERCENTILES)
+            out[v, 1:] = (values.mean(), values.std(), ordered[0], p10, p50, p90, ordered[-1])
+    return out
+
+
+#: The tile percentiles as fractions, as ``np.percentile`` turns 10, 50 and 90 into them.
+TILE_PERCENTILES = np.true_divide([10, 50, 90], 100)
+
+
+def percentiles_of_sorted(ordered: np.ndarray, fractions: np.ndarray) -> np.ndarray:
+    """Percentiles of sorted, finite values, equal to ``np.percentile(ordered, 100 * fractions)``
+    with numpy's default ('linear', Hyndman and Fan 1996 definition 7), step by step as numpy
+    computes them (``numpy.lib._function_base_impl._quantile``), without its selection."""
+    n = ordered.size
+    virtual = (n - 1) * fractions
+    previous = np.floor(virtual)
+    following = previous + 1
+    last = virtual >= n - 1  # at or past the last value: the last value
+    previous[last] = following[last] = -1
+    previous_index, following_index = previous.astype(np.intp), following.astype(np.intp)
+    low, high = ordered[previous_index], ordered[following_index]
+    gamma = virtual - previous_index
+    difference = high - low
+    out = low + difference * gamma
+    # numpy's lerp takes the upper value's side from gamma 0.5 on (monotonic, exact at 1)
+    np.subtract(high, difference * (1 - gamma), out=out, where=gamma >= 0.5)
     return out
 
 

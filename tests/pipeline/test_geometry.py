@@ -56,3 +56,26 @@ def test_sun_direction_on_the_lattice_equals_the_per_pixel_formula():
     expected = sun_direction(lat, 0.406, local_hour_angle(1.52, lon))
     for got, want in zip(sun, expected, strict=True):
         np.testing.assert_allclose(got, want, atol=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("crs", "origin", "size", "day"),
+    [
+        ("EPSG:32613", (480000.0, 4430000.0), 30.0, 165),  # UTM, mid-latitudes, June
+        ("EPSG:3031", (-1.2e6, 1.5e6), 250.0, 20),  # near 75 S in January: 24 h of daylight
+        ("EPSG:32633", (500000.0, 7400000.0), 30.0, 172),  # 66.7 N near midsummer (polar day)
+    ],
+)
+def test_daily_sun_on_the_lattice_equals_the_per_pixel_formulas(crs, origin, size, day):
+    # FAO-56 eqs. 21 and 34 (Allen et al. 1998) at every pixel's own latitude, against their
+    # interpolation from the lattice nodes
+    from rasterbudget.physics.solar import daylight_hours, extraterrestrial_radiation_daily
+    from rasterbudget.scene.geometry import daily_sun
+
+    grid = Grid(CRS.from_string(crs), from_origin(*origin, size, size), 500, 400)
+    rows, cols = slice(37, 301), slice(5, 490)
+    _, lat = pixel_lonlat(grid, rows, cols)
+    got = daily_sun(grid, rows, cols, day)
+    ra = extraterrestrial_radiation_daily(lat, day)
+    np.testing.assert_allclose(got.extraterrestrial_radiation, ra, rtol=1e-9)
+    np.testing.assert_allclose(got.daylight_hours, daylight_hours(lat, day), rtol=1e-9)
