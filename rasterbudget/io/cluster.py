@@ -27,11 +27,11 @@ def distributed_client():
         return None
 
 
-def _bound_gdal_cache(megabytes: int) -> None:
-    """Bound this process's GDAL block cache (run on each worker)."""
+def _bound_gdal_cache(cache_bytes: int) -> None:
+    """Bound this process's GDAL block cache (run on each worker) [bytes]."""
     from rasterio.env import set_gdal_config
 
-    set_gdal_config("GDAL_CACHEMAX", megabytes)
+    set_gdal_config("GDAL_CACHEMAX", cache_bytes)
 
 
 def close_worker_read_handles(client) -> None:
@@ -81,7 +81,7 @@ def dask_cluster(address: str | None = None, workers: int | None = None) -> Iter
             # the run's bounded GDAL block cache in the workers too (GDAL's default is 5 % of
             # the memory: with the input datasets kept open per thread it grew each worker by
             # 240 MB at 4096 x 4096)
-            environ["GDAL_CACHEMAX"] = str(GDAL_OPTIONS["GDAL_CACHEMAX"])
+            environ["GDAL_CACHEMAX"] = str(GDAL_OPTIONS["GDAL_CACHEMAX"])  # bytes (> 100000)
             with dask.config.set({"distributed.nanny.pre-spawn-environ": environ}):
                 cluster = LocalCluster(
                     n_workers=workers,
