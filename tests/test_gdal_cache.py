@@ -22,11 +22,10 @@ def _gdal_cache_max() -> int:
     return library.GDALGetCacheMax64()
 
 
-def test_the_runs_gdal_block_cache_holds_32_mib():
-    # GDAL_CACHEMAX = 32 meant 32 bytes: no tile stayed cached, and each halo read decoded the
-    # neighbouring tiles again
+def test_the_runs_gdal_block_cache_holds_8_mib():
+    # GDAL_CACHEMAX = 32 (meant as MB) was 32 bytes: no tile stayed cached
     with rasterio.Env(**GDAL_OPTIONS):
-        assert _gdal_cache_max() == GDAL_CACHE_BYTES == 32 * 2**20
+        assert _gdal_cache_max() == GDAL_CACHE_BYTES == 8 * 2**20
 
 
 def test_the_workers_get_the_same_cache():
