@@ -240,16 +240,19 @@ def gridded_weather_in_si(data: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
 
 
 def derive_inputs(
-    data: dict[str, np.ndarray], facts: Mapping[str, float] | None = None
+    data: dict[str, np.ndarray],
+    facts: Mapping[str, float] | None = None,
+    skip: tuple[str, ...] = (),
 ) -> dict[str, np.ndarray]:
     """Add to a block's inputs every derived input it lacks whose sources and scene facts it
-    holds, until none is left to add (a derived input may be the source of another)."""
+    holds, until none is left to add (a derived input may be the source of another); the roles
+    in ``skip`` are not derived (their results are known otherwise)."""
     facts = facts or {}
     added = True
     while added:
         added = False
         for role in INPUTS.values():
-            if role.derive is None or role.name in data:
+            if role.derive is None or role.name in data or role.name in skip:
                 continue
             if all(n in data for n in role.derived_from) and all(f in facts for f in role.facts):
                 sources = (data[name] for name in role.derived_from)

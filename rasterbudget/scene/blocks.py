@@ -142,14 +142,14 @@ def block_state(
             data[source.role] = np.pad(values, halo, constant_values=np.nan)
         else:
             data[source.role] = read_window(source, rows, cols, halo=halo)
-    data = derive_inputs(data, dict(ctx.derive_facts))
+    # pass 2 has the cloud mask's result from pass 1: a derived mask is not made again
+    data = derive_inputs(data, dict(ctx.derive_facts), skip=("cloud_mask",) if ctx.carried else ())
     masked = features = carried = None
     if ctx.carried:  # pass 2: pass 1's neighbourhood results, read in place of a halo
         carried = open_for_reading(ctx.carried).read(
             1, window=Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
         )
         features, masked = carried_features(carried)
-        data.pop("cloud_mask", None)  # derived from a product's bands: its result is carried
         if not ctx.anchor_screens:
             features = None
     elif "cloud_mask" in data:
