@@ -47,10 +47,11 @@ from .products import product_inputs
 SAMPLE_SIDE = 1024
 
 #: Measured on the project's 2-core machine: seconds per megapixel of a run's passes
-#: (``rasterbudget bench`` at 2048 square: 7.48 s for 4.19 Mpx) and seconds per scene of what
-#: does not grow with its size (inputs' checks, summaries, quick-look, manifest: 1.5-2 s for
-#: each 0.12 Mpx demo scene, whose passes take under 1 s).
-SECONDS_PER_MEGAPIXEL = 1.8
+#: (``rasterbudget bench`` pipeline phase at 2048 square: 4.4 s for 4.19 Mpx, less the scene's
+#: fixed 1.5 s; 12.2 s at 4096 square against 13.3 s estimated) and seconds
+#: per scene of what does not grow with its size (inputs' checks, summaries, quick-look,
+#: manifest: 1.5-2 s for each 0.12 Mpx demo scene, whose passes take under 1 s).
+SECONDS_PER_MEGAPIXEL = 0.7
 SECONDS_PER_SCENE = 1.5
 #: The first scene of a run also loads the libraries (numpy, dask, rasterio, scipy, pvlib,
 #: matplotlib): 4.5-5 s against 1-2 s for the next demo scenes.
@@ -181,8 +182,8 @@ def inspect_scene(
     lines += method_lines
     megapixels = grid.width * grid.height / 1e6
     members = max(1, scene.uncertainty.members)
-    # an ensemble of 8 costs about 2.4x one member (README, Performance)
-    seconds = SECONDS_PER_SCENE + SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.2 * (members - 1))
+    # an ensemble of 8 costs about 1.7x one member (README, Performance)
+    seconds = SECONDS_PER_SCENE + SECONDS_PER_MEGAPIXEL * megapixels * (1 + 0.1 * (members - 1))
     chunk = min(chunk_size, max(grid.width, grid.height))
     memory = memory_estimate_gb(chunk, scene.uncertainty.members, threads=2)
     lines.append(
