@@ -17,7 +17,6 @@ import hashlib
 import html
 import io
 import json
-import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -26,7 +25,7 @@ import numpy as np
 
 from .catalog.variables import VARIABLES
 from .io.paths import output_folder
-from .io.writers import PARTIAL_SUFFIX, write_text_atomic
+from .io.writers import write_bytes_atomic, write_text_atomic
 from .methods import METHODS
 from .scene.manifest import CAUTION
 from .scene.quicklook import (
@@ -669,18 +668,6 @@ _EMBEDDED = re.compile(r'src="data:image/png;base64,([A-Za-z0-9+/=]+)"')
 _LINKED_NAME = re.compile(r"[0-9a-f]{24}\.png")
 
 
-def _write_bytes_atomic(path: Path, data: bytes) -> Path:
-    """Write a binary file under a temporary name and rename it when complete."""
-    partial = path.with_name(path.name + PARTIAL_SUFFIX)
-    try:
-        partial.write_bytes(data)
-        os.replace(partial, path)
-    except BaseException:  # a full disk, an interrupt: no half-written file is left
-        partial.unlink(missing_ok=True)
-        raise
-    return path
-
-
 def _place_images(out_dir: Path, page: str, scenes: int) -> tuple[str, set[str]]:
     """The page with its images embedded (a small report) or linked as PNG files written to
     ``OUT/report_files/`` (named by their content, so an unchanged image is not rewritten);
@@ -695,7 +682,7 @@ def _place_images(out_dir: Path, page: str, scenes: int) -> tuple[str, set[str]]
         data = base64.b64decode(match.group(1))
         name = hashlib.sha256(data).hexdigest()[:24] + ".png"
         if name not in linked and not (folder / name).is_file():
-            _write_bytes_atomic(folder / name, data)
+            write_bytes_atomic(folder / name, data)
         linked.add(name)
         return f'src="{REPORT_FILES}/{name}" loading="lazy"'
 

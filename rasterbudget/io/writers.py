@@ -349,9 +349,18 @@ def write_cog(
 
 def write_text_atomic(path: Path, text: str) -> Path:
     """Write a text file under a temporary name and rename it when complete."""
+    return _written_then_renamed(path, lambda partial: partial.write_text(text, encoding="utf-8"))
+
+
+def write_bytes_atomic(path: Path, data: bytes) -> Path:
+    """Write a binary file under a temporary name and rename it when complete."""
+    return _written_then_renamed(path, lambda partial: partial.write_bytes(data))
+
+
+def _written_then_renamed(path: Path, write) -> Path:
     partial = path.with_name(path.name + PARTIAL_SUFFIX)
     try:
-        partial.write_text(text, encoding="utf-8")
+        write(partial)
         os.replace(partial, path)
     except BaseException:  # a full disk, an interrupt: no half-written file is left
         partial.unlink(missing_ok=True)
