@@ -469,7 +469,9 @@ def calibrate(
 class StabilityTable:
     r"""Converged 1/L by roughness length and the pixel's stability parameter dT / (Ts u^2).
 
-    Monin-Obukhov similarity makes the converged 1/L a function of these two alone: with
+    Monin-Obukhov similarity (Monin and Obukhov 1954; the corrections of Paulson 1970 and Webb
+    1970, :mod:`rasterbudget.physics.turbulence`) makes the converged 1/L a function of these two
+    alone: with
     :math:`u_* = k u / (\ln(z_b/z_{0m}) - \psi_m)` and :math:`r_{ah} = (\ln(z_2/z_1) - \psi_h(z_2)
     + \psi_h(z_1)) / (k u_*)`, the fixed point :math:`1/L = -k g H / (\rho c_p u_*^3 T_s)` with
     :math:`H = \rho c_p dT / r_{ah}` reads
